@@ -1,0 +1,40 @@
+"""mottle: many-run split-step Fourier propagation for wave transport in disorder."""
+
+from . import reference
+from .absorber import Absorber
+from .disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
+from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
+from .grid import Grid
+from .models import Continuum, Lattice
+from .packets import GaussianPacket, Wavefunction
+from .potentials import Barrier, Harmonic, Tabulated
+from .propagate import Run, propagate
+from .realize import realize
+from .system import System
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Absorber",
+    "Barrier",
+    "BoxDisorder",
+    "Continuum",
+    "GaussianDisorder",
+    "GaussianPacket",
+    "Grid",
+    "Harmonic",
+    "InvalidParameterError",
+    "InvalidTypeError",
+    "Lattice",
+    "MottleError",
+    "Run",
+    "Speckle",
+    "System",
+    "Tabulated",
+    "UnderResolvedWarning",
+    "Wavefunction",
+    "WhiteNoise",
+    "propagate",
+    "realize",
+    "reference",
+]

@@ -1,0 +1,74 @@
+"""Small validators shared by the spec classes: each names the value and what is accepted."""
+
+from __future__ import annotations
+
+import math
+import numbers
+
+import numpy as np
+
+from .errors import InvalidParameterError, InvalidTypeError
+
+
+def real(name: str, value: object) -> float:
+    """A finite real number."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise InvalidTypeError(f"{name} must be a real number, got {value!r} of type {type(value).__name__}")
+    value = float(value)
+    if not math.isfinite(value):
+        raise InvalidParameterError(f"{name} must be finite, got {value!r}")
+    return value
+
+
+def positive(name: str, value: object) -> float:
+    """A finite real number > 0."""
+    value = real(name, value)
+    if value <= 0.0:
+        raise InvalidParameterError(f"{name} must be > 0, got {value!r}")
+    return value
+
+
+def non_negative(name: str, value: object) -> float:
+    """A finite real number >= 0."""
+    value = real(name, value)
+    if value < 0.0:
+        raise InvalidParameterError(f"{name} must be >= 0, got {value!r}")
+    return value
+
+
+def integer(name: str, value: object, minimum: int) -> int:
+    """An integer (an int, a numpy integer, or a float with no fractional part) >= minimum."""
+    if isinstance(value, bool):
+        raise InvalidTypeError(f"{name} must be an integer, got {value!r}")
+    if isinstance(value, numbers.Integral):
+        result = int(value)
+    elif isinstance(value, numbers.Real):
+        if not math.isfinite(float(value)) or float(value) != math.floor(float(value)):
+            raise InvalidParameterError(f"{name} must be a whole number, got {value!r}")
+        result = int(value)
+    else:
+        raise InvalidTypeError(f"{name} must be an integer, got {value!r} of type {type(value).__name__}")
+    if result < minimum:
+        raise InvalidParameterError(f"{name} must be >= {minimum}, got {result}")
+    return result
+
+
+def real_array(name: str, values: object, shape: tuple[int, ...], dtype=np.float64) -> np.ndarray:
+    """A finite array of the given shape, copied so later writes by the caller do not reach us."""
+    try:
+        array = np.array(values, dtype=dtype, copy=True)
+    except (TypeError, ValueError) as error:
+        raise InvalidTypeError(f"{name} must be an array of numbers, got {type(values).__name__}: {error}") from None
+    if array.shape != shape:
+        raise InvalidParameterError(f"{name} must have shape {shape}, got {array.shape}")
+    if not np.all(np.isfinite(array)):
+        bad = int(np.flatnonzero(~np.isfinite(array.ravel()))[0])
+        raise InvalidParameterError(f"{name} must be finite everywhere, got {array.ravel()[bad]!r} at index {bad}")
+    array.setflags(write=False)
+    return array
+
+
+def choice(name: str, value: object, accepted: tuple) -> object:
+    if value not in accepted:
+        raise InvalidParameterError(f"{name} must be one of {', '.join(map(repr, accepted))}; got {value!r}")
+    return value

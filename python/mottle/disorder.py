@@ -1,0 +1,273 @@
+"""Random potentials: each confined to ``[start, stop)`` and summable with ``+``.
+
+Realization ``index`` of seed ``seed`` is generated in the Rust core from a
+counter-based stream keyed by (seed, index, term) alone; :func:`mottle.realize`
+returns exactly what a run used. Every model states its correlation
+``C(x) = <V(x0) V(x0 + x)>`` and power spectrum ``C~(q) = integral C(x) exp(-i q x) dx``
+(both analytic; the Born predictions use them).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _checks
+from .errors import InvalidParameterError
+from .grid import Grid
+
+# A correlated model needs this many grid spacings per correlation length.
+_MIN_POINTS_PER_CORRELATION = 2.0
+
+
+class Disorder:
+    """Base of the random models; ``a + b`` is their sum (independent terms)."""
+
+    start: float
+    stop: float
+
+    def __add__(self, other: object) -> "DisorderSum":
+        if not isinstance(other, Disorder):
+            return NotImplemented
+        return DisorderSum(_terms(self) + _terms(other))
+
+    @property
+    def terms(self) -> tuple["Disorder", ...]:
+        return (self,)
+
+    def correlation(self, x, dx: float | None = None) -> np.ndarray:
+        raise NotImplementedError
+
+    def power_spectrum(self, q, dx: float | None = None) -> np.ndarray:
+        raise NotImplementedError
+
+    def validate(self, grid: Grid) -> None:
+        if self.start < grid.start or self.stop > grid.stop:
+            raise InvalidParameterError(
+                f"{type(self).__name__} region [{self.start}, {self.stop}) must lie inside the box "
+                f"[{grid.start}, {grid.stop})"
+            )
+        ell = getattr(self, "correlation_length", None)
+        if ell is not None and ell < _MIN_POINTS_PER_CORRELATION * grid.dx:
+            raise InvalidParameterError(
+                f"{type(self).__name__} correlation_length {ell} is not resolved by the grid spacing "
+                f"{grid.dx:.4g}: use correlation_length >= {_MIN_POINTS_PER_CORRELATION * grid.dx:.4g} or "
+                f"at least {math.ceil(_MIN_POINTS_PER_CORRELATION * grid.length / ell)} points"
+            )
+        if not any(self.start <= x < self.stop for x in (grid.x[0], grid.x[-1])) and not np.any(
+            (grid.x >= self.start) & (grid.x < self.stop)
+        ):
+            raise InvalidParameterError(
+                f"{type(self).__name__} region [{self.start}, {self.stop}) holds no grid point"
+            )
+
+    def config(self) -> dict:
+        """The flat description the Rust core reads."""
+        raise NotImplementedError
+
+
+def _terms(model: Disorder) -> tuple[Disorder, ...]:
+    return model.terms
+
+
+def _region(model) -> None:
+    start = _checks.real("start", model.start)
+    stop = _checks.real("stop", model.stop)
+    if not start < stop:
+        raise InvalidParameterError(f"disorder region needs start < stop, got start={start}, stop={stop}")
+    object.__setattr__(model, "start", start)
+    object.__setattr__(model, "stop", stop)
+
+
+def _need_dx(name: str, dx: float | None) -> float:
+    if dx is None:
+        raise InvalidParameterError(f"{name} is defined per grid point: pass the grid spacing dx")
+    return _checks.positive("dx", dx)
+
+
+@dataclass(frozen=True)
+class DisorderSum(Disorder):
+    parts: tuple[Disorder, ...]
+
+    @property
+    def terms(self):
+        return self.parts
+
+    @property
+    def start(self):  # type: ignore[override]
+        return min(term.start for term in self.parts)
+
+    @property
+    def stop(self):  # type: ignore[override]
+        return max(term.stop for term in self.parts)
+
+    def correlation(self, x, dx=None):
+        return sum(term.correlation(x, dx) for term in self.parts)
+
+    def power_spectrum(self, q, dx=None):
+        return sum(term.power_spectrum(q, dx) for term in self.parts)
+
+    def validate(self, grid):
+        for term in self.parts:
+            term.validate(grid)
+
+
+@dataclass(frozen=True)
+class WhiteNoise(Disorder):
+    """Gaussian white noise, ``<V(x) V(x')> = strength * delta(x - x')``.
+
+    On the grid each point gets an independent normal value of variance
+    ``strength / dx`` (so that ``strength = variance * dx``).
+    """
+
+    strength: float
+    start: float
+    stop: float
+
+    def __post_init__(self):
+        object.__setattr__(self, "strength", _checks.positive("WhiteNoise strength", self.strength))
+        _region(self)
+
+    def variance(self, dx: float) -> float:
+        return self.strength / dx
+
+    def correlation(self, x, dx=None):
+        x = np.asarray(x, dtype=float)
+        peak = np.inf if dx is None else self.strength / dx
+        return np.where(x == 0.0, peak, 0.0)
+
+    def power_spectrum(self, q, dx=None):
+        return np.full_like(np.asarray(q, dtype=float), self.strength)
+
+    def config(self):
+        return {"kind": "white-noise", "strength": self.strength, "start": self.start, "stop": self.stop}
+
+
+@dataclass(frozen=True)
+class BoxDisorder(Disorder):
+    """Independent values uniform in ``[-width/2, width/2]`` at each grid point.
+
+    On a lattice this is the Anderson model; the variance is ``width**2 / 12``.
+    """
+
+    width: float
+    start: float
+    stop: float
+
+    def __post_init__(self):
+        object.__setattr__(self, "width", _checks.positive("BoxDisorder width", self.width))
+        _region(self)
+
+    def variance(self, dx: float | None = None) -> float:
+        return self.width**2 / 12.0
+
+    def correlation(self, x, dx=None):
+        x = np.asarray(x, dtype=float)
+        return np.where(x == 0.0, self.variance(), 0.0)
+
+    def power_spectrum(self, q, dx=None):
+        # Per-point variance s**2 on spacing dx is white noise of strength s**2 dx
+        # (common practice; REFERENCES pitfall 3).
+        dx = _need_dx("BoxDisorder power_spectrum", dx)
+        return np.full_like(np.asarray(q, dtype=float), self.variance() * dx)
+
+    def config(self):
+        return {"kind": "box", "width": self.width, "start": self.start, "stop": self.stop}
+
+
+@dataclass(frozen=True)
+class GaussianDisorder(Disorder):
+    """Gaussian-correlated disorder, ``C(x) = rms**2 exp(-x**2 / (2 correlation_length**2))``.
+
+    Generated by spectral filtering of white noise, with zero mean.
+    """
+
+    rms: float
+    correlation_length: float
+    start: float
+    stop: float
+
+    def __post_init__(self):
+        object.__setattr__(self, "rms", _checks.positive("GaussianDisorder rms", self.rms))
+        object.__setattr__(
+            self,
+            "correlation_length",
+            _checks.positive("GaussianDisorder correlation_length", self.correlation_length),
+        )
+        _region(self)
+
+    def variance(self, dx: float | None = None) -> float:
+        return self.rms**2
+
+    def correlation(self, x, dx=None):
+        x = np.asarray(x, dtype=float)
+        return self.rms**2 * np.exp(-np.square(x) / (2.0 * self.correlation_length**2))
+
+    def power_spectrum(self, q, dx=None):
+        q = np.asarray(q, dtype=float)
+        ell = self.correlation_length
+        return self.rms**2 * math.sqrt(2.0 * math.pi) * ell * np.exp(-np.square(q * ell) / 2.0)
+
+    def config(self):
+        return {
+            "kind": "gaussian",
+            "strength": self.rms,
+            "correlation_length": self.correlation_length,
+            "start": self.start,
+            "stop": self.stop,
+        }
+
+
+@dataclass(frozen=True)
+class Speckle(Disorder):
+    """Optical speckle: ``V = sign * strength * (I/<I> - 1)``.
+
+    ``I = |E|**2`` for a complex Gaussian field ``E`` whose spectrum is flat on
+    ``|q| < 1/correlation_length`` (a uniform pupil), and ``<I>`` is the ensemble
+    mean, so ``V`` has zero mean, ``C(x) = strength**2 sinc(x/l)**2`` with
+    ``sinc(u) = sin(u)/u``, and ``C~(q) = pi strength**2 l (1 - |q| l / 2)`` for
+    ``|q| < 2/l``, zero beyond (Goodman, Speckle Phenomena in Optics, 2007).
+    ``sign = +1`` is a repulsive (blue-detuned) speckle bounded below by
+    ``-strength``; ``sign = -1`` an attractive one.
+    """
+
+    strength: float
+    correlation_length: float
+    start: float
+    stop: float
+    sign: int = 1
+
+    def __post_init__(self):
+        object.__setattr__(self, "strength", _checks.positive("Speckle strength", self.strength))
+        object.__setattr__(
+            self,
+            "correlation_length",
+            _checks.positive("Speckle correlation_length", self.correlation_length),
+        )
+        _checks.choice("Speckle sign", self.sign, (1, -1))
+        object.__setattr__(self, "sign", int(self.sign))
+        _region(self)
+
+    def variance(self, dx: float | None = None) -> float:
+        return self.strength**2
+
+    def correlation(self, x, dx=None):
+        u = np.asarray(x, dtype=float) / self.correlation_length
+        return self.strength**2 * np.sinc(u / np.pi) ** 2
+
+    def power_spectrum(self, q, dx=None):
+        ql = np.abs(np.asarray(q, dtype=float)) * self.correlation_length
+        return np.where(
+            ql < 2.0, math.pi * self.strength**2 * self.correlation_length * (1.0 - ql / 2.0), 0.0
+        )
+
+    def config(self):
+        return {
+            "kind": "speckle",
+            "strength": self.sign * self.strength,
+            "correlation_length": self.correlation_length,
+            "start": self.start,
+            "stop": self.stop,
+        }

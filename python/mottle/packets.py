@@ -1,0 +1,113 @@
+"""Initial states: the minimum-uncertainty Gaussian packet and user wavefunctions."""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _checks
+from .errors import InvalidParameterError, UnderResolvedWarning
+from .grid import Grid
+
+# Beyond this many standard deviations a Gaussian is below rounding for our purposes.
+_TAIL = 5.0
+
+
+@dataclass(frozen=True)
+class GaussianPacket:
+    """``psi0(x) = (2 pi s**2)**(-1/4) exp(-(x-x0)**2/(4 s**2) + i k0 (x-x0))``.
+
+    ``center`` is x0, ``wavenumber`` k0 and ``width`` s the rms width of
+    ``|psi|**2``, so that ``s * s_p = hbar/2`` with ``s_k = 1/(2 s)``. On the grid
+    the distance ``x - x0`` is taken to the nearest periodic image, and the
+    sampled packet is normalized so that ``sum |psi|**2 dx = 1`` exactly.
+    """
+
+    center: float
+    wavenumber: float
+    width: float
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "center", _checks.real("packet center", self.center))
+        object.__setattr__(self, "wavenumber", _checks.real("packet wavenumber", self.wavenumber))
+        object.__setattr__(self, "width", _checks.positive("packet width", self.width))
+
+    @property
+    def wavenumber_spread(self) -> float:
+        """rms width of ``|phi(k)|**2``, ``1 / (2 width)``."""
+        return 0.5 / self.width
+
+    def mean_kinetic(self, model, dx: float) -> float:
+        """Mean kinetic energy above the band bottom (continuum: ``hbar**2 (k0**2 + s_k**2) / 2m``)."""
+        hbar_sq_over_2m = model.hbar**2 / (2.0 * model.effective_mass(dx))
+        return hbar_sq_over_2m * (self.wavenumber**2 + self.wavenumber_spread**2)
+
+    def validate(self, grid: Grid) -> None:
+        if not grid.contains(self.center):
+            raise InvalidParameterError(
+                f"packet center {self.center} lies outside the box [{grid.start}, {grid.stop})"
+            )
+        if 2.0 * _TAIL * self.width > grid.length:
+            raise InvalidParameterError(
+                f"packet width {self.width} is too wide for the box of length {grid.length}: "
+                f"the packet needs {2 * _TAIL:g} widths, so use width <= {grid.length / (2 * _TAIL):g}"
+            )
+        reach = abs(self.wavenumber) + _TAIL * self.wavenumber_spread
+        if reach > grid.k_max:
+            raise InvalidParameterError(
+                f"packet wavenumber {self.wavenumber} with spread {self.wavenumber_spread:.4g} reaches "
+                f"|k| = {reach:.4g}, beyond the grid's largest wavenumber pi/dx = {grid.k_max:.4g}; "
+                f"use more points (at least {math.ceil(reach * grid.length / math.pi)}) or a smaller |k0|"
+            )
+        edge = (0.5 * grid.length / self.width) ** 2 / 4.0
+        if edge < 18.0:
+            warnings.warn(
+                f"the packet (width {self.width}) still has amplitude {math.exp(-edge):.1e} half a box "
+                f"away; a box longer than {12 * self.width:g} keeps it whole",
+                UnderResolvedWarning,
+                stacklevel=3,
+            )
+
+    def values(self, grid: Grid) -> np.ndarray:
+        offset = np.asarray(grid.x) - self.center
+        offset -= grid.length * np.round(offset / grid.length)
+        psi = np.exp(-np.square(offset) / (4.0 * self.width**2) + 1j * self.wavenumber * offset)
+        return psi / math.sqrt(np.sum(np.abs(psi) ** 2) * grid.dx)
+
+
+@dataclass(frozen=True, eq=False)
+class Wavefunction:
+    """A user-supplied initial state at the grid points, normalized on the grid."""
+
+    table: np.ndarray
+
+    def __init__(self, values) -> None:
+        array = np.asarray(values)
+        if array.ndim != 1:
+            raise InvalidParameterError(f"wavefunction must be one-dimensional, got shape {array.shape}")
+        table = _checks.real_array("wavefunction", array, array.shape, dtype=np.complex128)
+        if not np.any(table):
+            raise InvalidParameterError("wavefunction is zero everywhere; it cannot be normalized")
+        object.__setattr__(self, "table", table)
+
+    def validate(self, grid: Grid) -> None:
+        if self.table.shape != (grid.points,):
+            raise InvalidParameterError(
+                f"wavefunction has shape {self.table.shape}; the grid needs ({grid.points},)"
+            )
+
+    def mean_kinetic(self, model, dx: float) -> float:
+        phi = np.fft.fft(self.table)
+        k = 2.0 * np.pi * np.fft.fftfreq(self.table.size, dx)
+        weight = np.abs(phi) ** 2
+        energy = model.kinetic(k, dx) - model.band_bottom(dx)
+        return float(np.sum(weight * energy) / np.sum(weight))
+
+    def values(self, grid: Grid) -> np.ndarray:
+        return self.table / math.sqrt(np.sum(np.abs(self.table) ** 2) * grid.dx)
+
+
+Packet = GaussianPacket | Wavefunction

@@ -1,0 +1,296 @@
+"""Single runs: :func:`propagate` and the :class:`Run` it returns."""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _checks, _core
+from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
+from .packets import GaussianPacket, Wavefunction
+from .system import System
+
+SPLITTINGS = {"strang": 2, "yoshida": 4, "blanes-moan": 4}
+# The 4th-order splitting `order=4` selects: Blanes-Moan needs twice the FFTs
+# of Yoshida per step but reaches the same error with a step about six times
+# longer (benches/bench_splitting.py measures both).
+DEFAULT_SPLITTING = {2: "strang", 4: "blanes-moan"}
+PRECISIONS = ("double", "single")
+
+
+@dataclass(frozen=True, eq=False)
+class Run:
+    """The outcome of one propagation.
+
+    Scalars (``norm``, ``absorbed_left``, ``absorbed_right``, ``reflection``,
+    ``transmission``) are at the end of the run; arrays indexed like ``times``
+    are at the snapshots. Expectation values are those of the probability still
+    in the box, normalized by it. ``reflection = P(x < left) + absorbed_left`` and
+    ``transmission = P(x > right) + absorbed_right`` for ``detector=(left, right)``
+    (``None`` without a detector). ``classical_position`` and
+    ``classical_momentum`` follow a classical particle started at the packet's
+    ``<x>`` and ``<p>`` in the same (real) potential; they are NaN once it has
+    entered an absorbing layer.
+    """
+
+    times: np.ndarray
+    psi: np.ndarray
+    snapshots: np.ndarray
+    norm: float
+    absorbed_left: float
+    absorbed_right: float
+    reflection: float | None
+    transmission: float | None
+    position: np.ndarray
+    position_squared: np.ndarray
+    momentum: np.ndarray
+    energy: np.ndarray
+    norms: np.ndarray
+    classical_position: np.ndarray
+    classical_momentum: np.ndarray
+    x: np.ndarray
+    dx: float
+
+    @property
+    def width(self) -> np.ndarray:
+        """rms width ``sqrt(<x**2> - <x>**2)`` of ``|psi|**2`` at the snapshots."""
+        return np.sqrt(np.maximum(self.position_squared - self.position**2, 0.0))
+
+    @property
+    def density(self) -> np.ndarray:
+        """``|psi|**2`` at the end of the run."""
+        return np.abs(self.psi) ** 2
+
+
+def steps_for(duration: float, step: float, name: str = "duration") -> int:
+    """The whole number of steps in ``duration``; refuse a duration that is not a multiple of ``step``."""
+    count = round(duration / step)
+    if count < 1 or abs(count * step - duration) > 1e-9 * max(duration, step):
+        nearby = duration / max(count, 1)
+        raise InvalidParameterError(
+            f"{name} {duration} is not a whole number of steps of {step}: use a step that divides it, "
+            f"e.g. step = {nearby:.6g} ({max(count, 1)} steps)"
+        )
+    return count
+
+
+def pauses_for(snapshots, step: float, steps: int) -> list[int]:
+    """Step counts of the snapshot times (rounded to the nearest step), increasing."""
+    times = np.atleast_1d(np.asarray(snapshots, dtype=float)) if len(snapshots) else np.zeros(0)
+    pauses = []
+    for time in times:
+        if not math.isfinite(time) or time <= 0.0 or time > steps * step * (1 + 1e-12):
+            raise InvalidParameterError(
+                f"snapshot time {time} must lie in (0, duration = {steps * step:g}]"
+            )
+        pauses.append(max(1, round(time / step)))
+    if any(b <= a for a, b in zip(pauses, pauses[1:])):
+        raise InvalidParameterError(
+            f"snapshot times must increase and be at least one step ({step}) apart, got {list(times)}"
+        )
+    return pauses
+
+
+def detector_bounds(system: System, detector) -> tuple[int, int] | None:
+    """``(left_end, right_start)`` of ``detector=(left, right)``: points ``x < left`` and ``x > right``."""
+    if detector is None:
+        return None
+    try:
+        left, right = detector
+    except (TypeError, ValueError):
+        raise InvalidTypeError(f"detector must be a pair (left, right), got {detector!r}") from None
+    left = _checks.real("detector left", left)
+    right = _checks.real("detector right", right)
+    if left > right:
+        raise InvalidParameterError(f"detector left={left} must be <= right={right}")
+    x = system.grid.x
+    return int(np.searchsorted(x, left, side="left")), int(np.searchsorted(x, right, side="right"))
+
+
+def resolve_splitting(order, splitting) -> str:
+    if splitting is not None:
+        _checks.choice("splitting", splitting, tuple(SPLITTINGS))
+        if order is not None and order != SPLITTINGS[splitting] and order != 2:
+            raise InvalidParameterError(f"splitting {splitting!r} has order {SPLITTINGS[splitting]}, not {order}")
+        return splitting
+    if isinstance(order, bool) or order not in DEFAULT_SPLITTING:
+        raise InvalidParameterError(f"order must be 2 or 4, got {order!r}")
+    return DEFAULT_SPLITTING[order]
+
+
+def check_packet(system: System, packet) -> None:
+    if not isinstance(packet, (GaussianPacket, Wavefunction)):
+        raise InvalidTypeError(
+            f"packet must be a mottle.GaussianPacket or mottle.Wavefunction, got {type(packet).__name__}"
+        )
+    packet.validate(system.grid)
+
+
+def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -> None:
+    """Warn when the phase a step puts on the populated wavenumbers, or the potential, exceeds pi."""
+    grid, model, hbar = system.grid, system.model, system.hbar
+    band = _band_reach(system, packet, potential)
+    kinetic_phase = (model.kinetic(band, grid.dx) - model.kinetic(0.0, grid.dx)) * step / hbar
+    if kinetic_phase > math.pi:
+        limit = step * math.pi / kinetic_phase
+        warnings.warn(
+            f"step {step} is too coarse: the kinetic phase per step reaches {kinetic_phase:.3g} rad at "
+            f"|k| = {band:.3g}, the largest wavenumber this run populates (keep it below pi: step <= {limit:.3g})",
+            UnderResolvedWarning,
+            stacklevel=3,
+        )
+    span = float(np.max(np.abs(potential))) if potential.size else 0.0
+    potential_phase = span * step / hbar
+    if potential_phase > math.pi:
+        warnings.warn(
+            f"step {step} is too coarse: the potential phase per step reaches {potential_phase:.3g} rad "
+            f"where |V| = {span:.3g} (keep it below pi: step <= {step * math.pi / potential_phase:.3g})",
+            UnderResolvedWarning,
+            stacklevel=3,
+        )
+    if system.absorber is not None:
+        energy = packet.mean_kinetic(model, grid.dx)
+        design = system.absorber.design_energy(model, grid.dx)
+        if system.absorber.strength is None and energy < 2.0 * design:
+            warnings.warn(
+                f"absorber width {system.absorber.width} reflects more than 1e-3 of a packet of mean energy "
+                f"{energy:.3g}: its design energy is {design:.3g}; use width >= "
+                f"{system.absorber.width_for(energy, model, grid.dx):.3g} to absorb it cleanly",
+                UnderResolvedWarning,
+                stacklevel=3,
+            )
+
+
+def _band_reach(system: System, packet, potential: np.ndarray) -> float:
+    """The largest |k| a run populates: the packet's band widened by what the potential can add."""
+    grid, model = system.grid, system.model
+    if isinstance(packet, GaussianPacket):
+        reach = abs(packet.wavenumber) + 5.0 * packet.wavenumber_spread
+    else:
+        weight = np.abs(np.fft.fft(packet.table)) ** 2
+        k = np.abs(grid.k)
+        order = np.argsort(k)
+        cumulative = np.cumsum(weight[order]) / np.sum(weight)
+        reach = float(k[order][min(np.searchsorted(cumulative, 1.0 - 1e-12), k.size - 1)])
+    depth = float(np.max(potential) - np.min(potential)) if potential.size else 0.0
+    mass = model.effective_mass(grid.dx)
+    reach += math.sqrt(2.0 * mass * depth) / model.hbar
+    return min(reach, grid.k_max)
+
+
+def initial_phase_space(system: System, packet) -> tuple[float, float]:
+    """The packet's ``<x>`` and ``<p>``, where the classical particle starts."""
+    if isinstance(packet, GaussianPacket):
+        return packet.center, system.hbar * packet.wavenumber
+    psi = packet.values(system.grid)
+    rho = np.abs(psi) ** 2 * system.grid.dx
+    phi = np.abs(np.fft.fft(psi)) ** 2
+    return float(np.sum(rho * system.grid.x)), float(system.hbar * np.sum(phi * system.grid.k) / np.sum(phi))
+
+
+def setup_config(system: System, step: float, splitting: str) -> dict:
+    left_end, right_start = system.layer_bounds()
+    return {
+        "points": system.grid.points,
+        "dx": system.grid.dx,
+        "start": system.grid.start,
+        "hbar": system.hbar,
+        "nonlinearity": system.nonlinearity,
+        "step": step,
+        "splitting": splitting,
+        "left_layer_end": left_end,
+        "right_layer_start": right_start,
+    }
+
+
+def check_system(system) -> None:
+    if not isinstance(system, System):
+        raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
+
+
+def propagate(
+    system: System,
+    packet,
+    duration: float,
+    step: float,
+    order: int = 2,
+    seed: int = 0,
+    index: int = 0,
+    snapshots=(),
+    detector=None,
+    splitting: str | None = None,
+    precision: str = "double",
+    classical: bool = True,
+) -> Run:
+    """Propagate ``packet`` in ``system`` for ``duration`` in steps of ``step``.
+
+    The disorder (if any) is realization ``index`` of ``seed``, the one
+    :func:`mottle.realize` returns. ``order=2`` is Strang splitting, ``order=4``
+    the Blanes-Moan composition (``splitting="yoshida"`` picks Yoshida's).
+    ``duration`` must be a whole number of steps; snapshot times are rounded to
+    the nearest step (``Run.times`` holds them). The GIL is released while the
+    core runs and Ctrl-C stops it within a fraction of a second.
+    """
+    check_system(system)
+    check_packet(system, packet)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    splitting = resolve_splitting(order, splitting)
+    _checks.choice("precision", precision, PRECISIONS)
+    seed = _checks.integer("seed", seed, minimum=0)
+    index = _checks.integer("index", index, minimum=0)
+    steps = steps_for(duration, step)
+    pauses = pauses_for(snapshots, step, steps)
+    bounds = detector_bounds(system, detector)
+
+    from .realize import realize
+
+    potential = realize(system, seed, index)
+    warn_if_coarse(system, packet, step, potential)
+    psi0 = packet.values(system.grid).astype(np.complex128)
+    start = initial_phase_space(system, packet) if classical else None
+    model = system.model
+    run_config = {
+        "steps": steps,
+        "pauses": pauses,
+        "keep_snapshots": True,
+        "detector": bounds,
+        "classical": None
+        if start is None
+        else (start[0], start[1], model.kind, getattr(model, "mass", 1.0), getattr(model, "hopping", 1.0)),
+        "precision": precision,
+    }
+    out = _core.propagate_one(
+        setup_config(system, step, splitting),
+        run_config,
+        system.kinetic_table(),
+        system.absorption(),
+        potential,
+        psi0,
+    )
+    last, seen = out["last"], out["observations"]
+    absorbed = out["classical_absorbed"] != 0
+    classical_position = np.where(absorbed, np.nan, out["classical_position"]) if classical else None
+    classical_momentum = np.where(absorbed, np.nan, out["classical_momentum"]) if classical else None
+    return Run(
+        times=np.asarray(pauses, dtype=float) * step,
+        psi=out["psi"],
+        snapshots=out["snapshots"],
+        norm=float(last["norm"][0]),
+        absorbed_left=float(last["absorbed_left"][0]),
+        absorbed_right=float(last["absorbed_right"][0]),
+        reflection=None if bounds is None else float(last["reflection"][0]),
+        transmission=None if bounds is None else float(last["transmission"][0]),
+        position=seen["position"],
+        position_squared=seen["position_squared"],
+        momentum=seen["momentum"],
+        energy=seen["energy"],
+        norms=seen["norm"],
+        classical_position=classical_position,
+        classical_momentum=classical_momentum,
+        x=system.grid.x,
+        dx=system.grid.dx,
+    )

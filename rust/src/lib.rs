@@ -1,0 +1,16 @@
+//! mottle's core: many-run split-step Fourier propagation of the
+//! time-dependent Schrodinger equation, in plain Rust (no Python here but in
+//! `bindings`, built with the `python` feature).
+
+pub mod classical;
+pub mod error;
+pub mod observables;
+pub mod propagate;
+pub mod real;
+pub mod splitting;
+pub mod stepper;
+
+#[cfg(feature = "python")]
+mod bindings;
+
+pub use error::CoreError;

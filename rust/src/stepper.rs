@@ -1,0 +1,432 @@
+//! The split-step loop: plans and phase tables built once, no allocation per step.
+//!
+//! Conventions: `psi` holds the wavefunction at the grid points, normalized so
+//! that `sum |psi|^2 dx = 1`. The forward FFT is unnormalized (rustfft); the
+//! kinetic factors carry the `1/N` of the inverse. A potential factor of
+//! fraction `f` multiplies by `exp(-i (V + g|psi|^2) f h / hbar) exp(-W f_abs h / hbar)`;
+//! a kinetic factor multiplies `FFT(psi)` by `exp(-i T(k) f h / hbar)`.
+
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+
+use num_complex::{Complex, Complex64};
+use rustfft::{Fft, FftPlanner};
+
+use crate::error::{invalid, CoreError};
+use crate::real::{density, narrow, Real};
+use crate::splitting::{Schedule, Splitting};
+
+/// How many steps run between two looks at the cancel flag.
+const CANCEL_POLL_STEPS: usize = 16;
+
+/// Everything about a run that does not change between realizations.
+#[derive(Debug, Clone)]
+pub struct Setup {
+    pub points: usize,
+    pub dx: f64,
+    /// Position of the first grid point.
+    pub start: f64,
+    pub hbar: f64,
+    /// Kinetic energy at each wavenumber, in FFT order.
+    pub kinetic: Vec<f64>,
+    /// Absorbing potential `W >= 0` at each point (all zero without absorbers).
+    pub absorption: Vec<f64>,
+    /// Points `0 .. left_layer_end` form the left absorbing layer.
+    pub left_layer_end: usize,
+    /// Points `right_layer_start .. points` form the right absorbing layer.
+    pub right_layer_start: usize,
+    /// The cubic coefficient `g` of `g |psi|^2`.
+    pub nonlinearity: f64,
+    pub step: f64,
+    pub splitting: Splitting,
+}
+
+impl Setup {
+    pub fn validate(&self) -> Result<(), CoreError> {
+        let n = self.points;
+        if n < 2 {
+            return invalid(format!("points must be >= 2, got {n}"));
+        }
+        if self.kinetic.len() != n || self.absorption.len() != n {
+            return invalid(format!(
+                "kinetic ({}) and absorption ({}) tables must have the grid's {n} points",
+                self.kinetic.len(),
+                self.absorption.len()
+            ));
+        }
+        if self.left_layer_end > self.right_layer_start || self.right_layer_start > n {
+            return invalid(format!(
+                "absorbing layers [0, {}) and [{}, {n}) overlap or leave the grid",
+                self.left_layer_end, self.right_layer_start
+            ));
+        }
+        for (name, value) in [("dx", self.dx), ("hbar", self.hbar), ("step", self.step)] {
+            if !(value.is_finite() && value > 0.0) {
+                return invalid(format!("{name} must be finite and > 0, got {value}"));
+            }
+        }
+        if !self.nonlinearity.is_finite() || !self.start.is_finite() {
+            return invalid("nonlinearity and start must be finite");
+        }
+        if self
+            .kinetic
+            .iter()
+            .chain(&self.absorption)
+            .any(|v| !v.is_finite())
+        {
+            return invalid("kinetic and absorption tables must be finite");
+        }
+        if self.absorption.iter().any(|&w| w < 0.0) {
+            return invalid("absorption must be >= 0 everywhere");
+        }
+        Ok(())
+    }
+}
+
+/// FFT plans of one size, shared by every thread.
+pub struct Plans<T: Real> {
+    pub forward: Arc<dyn Fft<T>>,
+    pub inverse: Arc<dyn Fft<T>>,
+}
+
+impl<T: Real> Plans<T> {
+    pub fn new(points: usize) -> Self {
+        let mut planner = FftPlanner::<T>::new();
+        Plans {
+            forward: planner.plan_fft_forward(points),
+            inverse: planner.plan_fft_inverse(points),
+        }
+    }
+
+    pub fn scratch_len(&self) -> usize {
+        self.forward
+            .get_inplace_scratch_len()
+            .max(self.inverse.get_inplace_scratch_len())
+    }
+}
+
+/// Tables that depend only on the setup (not on the realization's potential).
+pub struct Shared<T: Real> {
+    pub setup: Setup,
+    pub plans: Plans<T>,
+    pub schedule: Schedule,
+    /// `exp(-i T(k) f h / hbar) / N` for each distinct kinetic fraction.
+    kinetic_factors: Vec<Vec<Complex<T>>>,
+}
+
+impl<T: Real> Shared<T> {
+    pub fn new(setup: Setup) -> Result<Self, CoreError> {
+        setup.validate()?;
+        let schedule = Schedule::new(&setup.splitting);
+        let scale = 1.0 / setup.points as f64;
+        let kinetic_factors = schedule
+            .kinetic_fractions
+            .iter()
+            .map(|&fraction| {
+                let angle = -fraction * setup.step / setup.hbar;
+                setup
+                    .kinetic
+                    .iter()
+                    .map(|&energy| narrow(Complex64::from_polar(scale, angle * energy)))
+                    .collect()
+            })
+            .collect();
+        let plans = Plans::new(setup.points);
+        Ok(Shared {
+            setup,
+            plans,
+            schedule,
+            kinetic_factors,
+        })
+    }
+}
+
+/// Potential factors for one realization, one table per distinct fraction.
+struct PotentialFactors<T: Real> {
+    phase: Vec<Vec<Complex<T>>>,
+    /// `1 - exp(-2 W f_abs h / hbar)` at the layer points (left layer then right).
+    loss: Vec<Vec<f64>>,
+    /// `-g f h / hbar` per table: the nonlinear phase per unit density.
+    nonlinear_angle: Vec<T>,
+}
+
+/// Probability removed by each absorbing layer so far.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Absorbed {
+    pub left: f64,
+    pub right: f64,
+}
+
+/// One thread's propagator: its buffers and the current realization's tables.
+pub struct Stepper<'a, T: Real> {
+    shared: &'a Shared<T>,
+    factors: PotentialFactors<T>,
+    scratch: Vec<Complex<T>>,
+    pub absorbed: Absorbed,
+    /// Real potential of the current realization (for the energy).
+    potential: Vec<f64>,
+}
+
+impl<'a, T: Real> Stepper<'a, T> {
+    pub fn new(shared: &'a Shared<T>) -> Self {
+        let tables = shared.schedule.potential_fractions.len();
+        let n = shared.setup.points;
+        let layer_points = shared.setup.left_layer_end + (n - shared.setup.right_layer_start);
+        Stepper {
+            shared,
+            factors: PotentialFactors {
+                phase: vec![vec![Complex::new(T::one(), T::zero()); n]; tables],
+                loss: vec![vec![0.0; layer_points]; tables],
+                nonlinear_angle: vec![T::zero(); tables],
+            },
+            scratch: vec![Complex::new(T::zero(), T::zero()); shared.plans.scratch_len()],
+            absorbed: Absorbed::default(),
+            potential: vec![0.0; n],
+        }
+    }
+
+    pub fn setup(&self) -> &Setup {
+        &self.shared.setup
+    }
+
+    /// The shared tables, borrowed for as long as the stepper's own borrow.
+    pub fn shared(&self) -> &'a Shared<T> {
+        self.shared
+    }
+
+    /// Build the potential factors for a realization's real potential `V` and
+    /// reset the absorbed probability.
+    pub fn prepare(&mut self, potential: &[f64]) -> Result<(), CoreError> {
+        let setup = &self.shared.setup;
+        if potential.len() != setup.points {
+            return invalid(format!(
+                "potential has {} values; the grid has {}",
+                potential.len(),
+                setup.points
+            ));
+        }
+        if let Some(bad) = potential.iter().position(|v| !v.is_finite()) {
+            return invalid(format!(
+                "potential is not finite at point {bad}: {}",
+                potential[bad]
+            ));
+        }
+        self.potential.copy_from_slice(potential);
+        let layers = layer_indices(setup);
+        for (table, &(fraction, absorbing)) in
+            self.shared.schedule.potential_fractions.iter().enumerate()
+        {
+            let phase_angle = -fraction * setup.step / setup.hbar;
+            let decay = -absorbing * setup.step / setup.hbar;
+            for ((factor, &v), &w) in self.factors.phase[table]
+                .iter_mut()
+                .zip(potential)
+                .zip(&setup.absorption)
+            {
+                *factor = narrow(Complex64::from_polar((decay * w).exp(), phase_angle * v));
+            }
+            for (loss, j) in self.factors.loss[table].iter_mut().zip(layers.clone()) {
+                *loss = -(2.0 * decay * setup.absorption[j]).exp_m1();
+            }
+            self.factors.nonlinear_angle[table] = T::of(setup.nonlinearity * phase_angle);
+        }
+        self.absorbed = Absorbed::default();
+        Ok(())
+    }
+
+    fn apply_potential(&mut self, psi: &mut [Complex<T>], table: usize) {
+        let setup = &self.shared.setup;
+        let loss = &self.factors.loss[table];
+        let left_end = setup.left_layer_end;
+        let right_start = setup.right_layer_start;
+        if !loss.is_empty() {
+            // Probability leaves only through the layers; summing it here, in
+            // f64 and before the factor is applied, makes the accounting exact.
+            let (left_loss, right_loss) = loss.split_at(left_end);
+            let left: f64 = psi[..left_end]
+                .iter()
+                .zip(left_loss)
+                .map(|(&z, &l)| density(z) * l)
+                .sum();
+            let right: f64 = psi[right_start..]
+                .iter()
+                .zip(right_loss)
+                .map(|(&z, &l)| density(z) * l)
+                .sum();
+            self.absorbed.left += left * setup.dx;
+            self.absorbed.right += right * setup.dx;
+        }
+        let phase = &self.factors.phase[table];
+        let angle = self.factors.nonlinear_angle[table];
+        if angle == T::zero() {
+            for (z, &f) in psi.iter_mut().zip(phase) {
+                *z = *z * f;
+            }
+        } else {
+            // |psi| is constant under the real potential, so the nonlinear
+            // phase is exact (inside absorbing layers, |psi| at the start of the
+            // factor is used).
+            for (z, &f) in psi.iter_mut().zip(phase) {
+                let rho = z.norm_sqr();
+                *z = *z * f * Complex::from_polar(T::one(), angle * rho);
+            }
+        }
+    }
+
+    fn apply_kinetic(&mut self, psi: &mut [Complex<T>], table: usize) {
+        let plans = &self.shared.plans;
+        plans.forward.process_with_scratch(psi, &mut self.scratch);
+        for (z, &f) in psi.iter_mut().zip(&self.shared.kinetic_factors[table]) {
+            *z = *z * f;
+        }
+        plans.inverse.process_with_scratch(psi, &mut self.scratch);
+    }
+
+    /// Advance `steps` whole steps from a paused state (every factor applied)
+    /// to a paused state, merging the potential factors between steps.
+    pub fn advance(
+        &mut self,
+        psi: &mut [Complex<T>],
+        steps: usize,
+        cancel: &AtomicBool,
+    ) -> Result<(), CoreError> {
+        if psi.len() != self.shared.setup.points {
+            return invalid(format!(
+                "psi has {} values; the grid has {}",
+                psi.len(),
+                self.shared.setup.points
+            ));
+        }
+        if steps == 0 {
+            return Ok(());
+        }
+        let schedule = &self.shared.schedule;
+        let (first, merged, closing) =
+            (schedule.before_stage[0], schedule.merged, schedule.closing);
+        let stages = schedule.kinetic_stage.len();
+        let mut pending = first;
+        for step in 0..steps {
+            for stage in 0..stages {
+                let potential = if stage == 0 {
+                    pending
+                } else {
+                    self.shared.schedule.before_stage[stage]
+                };
+                self.apply_potential(psi, potential);
+                self.apply_kinetic(psi, self.shared.schedule.kinetic_stage[stage]);
+            }
+            pending = merged;
+            if step % CANCEL_POLL_STEPS == CANCEL_POLL_STEPS - 1 && cancel.load(Ordering::Relaxed) {
+                return Err(CoreError::Interrupted);
+            }
+        }
+        self.apply_potential(psi, closing);
+        Ok(())
+    }
+
+    /// The real potential of the current realization.
+    pub fn potential(&self) -> &[f64] {
+        &self.potential
+    }
+
+    /// Forward FFT of `psi` into `out` (unnormalized), using this stepper's scratch.
+    pub fn transform(&mut self, psi: &[Complex<T>], out: &mut [Complex<T>]) {
+        out.copy_from_slice(psi);
+        self.shared
+            .plans
+            .forward
+            .process_with_scratch(out, &mut self.scratch);
+    }
+}
+
+fn layer_indices(setup: &Setup) -> impl Iterator<Item = usize> + Clone {
+    (0..setup.left_layer_end).chain(setup.right_layer_start..setup.points)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn free_setup(points: usize) -> Setup {
+        let length = 40.0;
+        let dx = length / points as f64;
+        let kinetic = (0..points)
+            .map(|j| {
+                let index = if j < points.div_ceil(2) {
+                    j as f64
+                } else {
+                    j as f64 - points as f64
+                };
+                let k = 2.0 * std::f64::consts::PI * index / length;
+                0.5 * k * k
+            })
+            .collect();
+        Setup {
+            points,
+            dx,
+            start: -20.0,
+            hbar: 1.0,
+            kinetic,
+            absorption: vec![0.0; points],
+            left_layer_end: 0,
+            right_layer_start: points,
+            nonlinearity: 0.0,
+            step: 0.01,
+            splitting: Splitting::strang(),
+        }
+    }
+
+    fn assert_send_sync<T: Send + Sync>() {}
+
+    #[test]
+    fn shared_tables_are_send_and_sync() {
+        assert_send_sync::<Shared<f64>>();
+        assert_send_sync::<Shared<f32>>();
+    }
+
+    #[test]
+    fn free_propagation_keeps_the_norm() {
+        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let mut stepper = Stepper::new(&shared);
+        stepper.prepare(&[0.0; 64]).unwrap();
+        let dx = shared.setup.dx;
+        let mut psi: Vec<Complex64> = (0..64)
+            .map(|j| {
+                let x = -20.0 + j as f64 * dx;
+                Complex64::from_polar((-x * x / 4.0).exp(), x)
+            })
+            .collect();
+        let norm0: f64 = psi.iter().map(|z| z.norm_sqr()).sum();
+        stepper
+            .advance(&mut psi, 100, &AtomicBool::new(false))
+            .unwrap();
+        let norm1: f64 = psi.iter().map(|z| z.norm_sqr()).sum();
+        assert!((norm1 / norm0 - 1.0).abs() < 1e-13, "{norm0} {norm1}");
+    }
+
+    #[test]
+    fn cancel_flag_interrupts() {
+        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let mut stepper = Stepper::new(&shared);
+        stepper.prepare(&[0.0; 64]).unwrap();
+        let mut psi = vec![Complex64::new(1.0, 0.0); 64];
+        let result = stepper.advance(&mut psi, 1000, &AtomicBool::new(true));
+        assert_eq!(result, Err(CoreError::Interrupted));
+    }
+
+    #[test]
+    fn wrong_sizes_are_errors_not_panics() {
+        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let mut stepper = Stepper::new(&shared);
+        assert!(stepper.prepare(&[0.0; 63]).is_err());
+        assert!(stepper.prepare(&[f64::NAN; 64]).is_err());
+        stepper.prepare(&[0.0; 64]).unwrap();
+        let mut psi = vec![Complex64::new(1.0, 0.0); 65];
+        assert!(stepper
+            .advance(&mut psi, 1, &AtomicBool::new(false))
+            .is_err());
+        let mut bad = free_setup(64);
+        bad.kinetic.pop();
+        assert!(Shared::<f64>::new(bad).is_err());
+    }
+}
