@@ -3,18 +3,31 @@
 from . import reference
 from .absorber import Absorber
 from .disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
+from .ensemble import CHUNK, EnsemblePartial, EnsembleResult, ensemble, ensemble_partial, merge_partials
 from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
 from .grid import Grid
 from .models import Continuum, Lattice
-from .packets import GaussianPacket, Wavefunction
+from .packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
 from .potentials import Barrier, Harmonic, Tabulated
 from .propagate import Run, propagate
 from .realize import realize
+from .statistics import Stat
 from .system import System
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "CHUNK",
+    "EnsemblePartial",
+    "EnsembleResult",
+    "Normal",
+    "PacketList",
+    "RandomPacket",
+    "Stat",
+    "Uniform",
+    "ensemble",
+    "ensemble_partial",
+    "merge_partials",
     "Absorber",
     "Barrier",
     "BoxDisorder",

@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _checks
-from .errors import InvalidParameterError, UnderResolvedWarning
+from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from .grid import Grid
 
 # Beyond this many standard deviations a Gaussian is below rounding for our purposes.
@@ -111,3 +111,142 @@ class Wavefunction:
 
 
 Packet = GaussianPacket | Wavefunction
+
+
+@dataclass(frozen=True)
+class Uniform:
+    """A packet parameter drawn uniformly from ``[low, high)`` per realization."""
+
+    low: float
+    high: float
+
+    def __post_init__(self) -> None:
+        low = _checks.real("Uniform low", self.low)
+        high = _checks.real("Uniform high", self.high)
+        if not low < high:
+            raise InvalidParameterError(f"Uniform needs low < high, got low={low}, high={high}")
+        object.__setattr__(self, "low", low)
+        object.__setattr__(self, "high", high)
+
+    def config(self) -> tuple[str, float, float]:
+        return ("uniform", self.low, self.high)
+
+    def extremes(self) -> tuple[float, float]:
+        return self.low, self.high
+
+
+@dataclass(frozen=True)
+class Normal:
+    """A packet parameter drawn from a normal distribution per realization.
+
+    Validation checks the packets at ``mean +- 6 std`` (a draw beyond has
+    probability 2e-9).
+    """
+
+    mean: float
+    std: float
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "mean", _checks.real("Normal mean", self.mean))
+        object.__setattr__(self, "std", _checks.positive("Normal std", self.std))
+
+    def config(self) -> tuple[str, float, float]:
+        return ("normal", self.mean, self.std)
+
+    def extremes(self) -> tuple[float, float]:
+        return self.mean - 6.0 * self.std, self.mean + 6.0 * self.std
+
+
+def _draw_config(value) -> tuple[str, float, float]:
+    return value.config() if isinstance(value, (Uniform, Normal)) else ("fixed", float(value), 0.0)
+
+
+def _extremes(value) -> tuple[float, ...]:
+    return value.extremes() if isinstance(value, (Uniform, Normal)) else (float(value),)
+
+
+@dataclass(frozen=True)
+class RandomPacket:
+    """A Gaussian packet whose ``center``, ``wavenumber`` and ``width`` may each be
+    a number or drawn per realization (:class:`Uniform`, :class:`Normal`).
+
+    The draws of realization ``r`` come from the counter-based stream keyed by
+    (seed, r), so ``propagate(..., index=r)`` starts from the same packet as
+    realization ``r`` of ``ensemble``. Every packet the distributions can reach
+    (checked at their extremes) must fit the grid.
+    """
+
+    center: float | Uniform | Normal
+    wavenumber: float | Uniform | Normal
+    width: float | Uniform | Normal
+
+    def __post_init__(self) -> None:
+        for name in ("center", "wavenumber", "width"):
+            value = getattr(self, name)
+            if not isinstance(value, (Uniform, Normal)):
+                object.__setattr__(self, name, _checks.real(f"packet {name}", value))
+        if min(_extremes(self.width)) <= 0.0:
+            raise InvalidParameterError(
+                f"packet width {self.width} can reach widths <= 0; keep the whole distribution positive"
+            )
+
+    def corners(self) -> list[GaussianPacket]:
+        return [
+            GaussianPacket(c, k, s)
+            for c in _extremes(self.center)
+            for k in _extremes(self.wavenumber)
+            for s in _extremes(self.width)
+        ]
+
+    def validate(self, grid: Grid) -> None:
+        for packet in self.corners():
+            packet.validate(grid)
+
+    def mean_kinetic(self, model, dx: float) -> float:
+        return min(packet.mean_kinetic(model, dx) for packet in self.corners())
+
+    def config(self, grid: Grid) -> dict:
+        return {
+            "kind": "gaussian",
+            "center": _draw_config(self.center),
+            "wavenumber": _draw_config(self.wavenumber),
+            "width": _draw_config(self.width),
+        }
+
+    def packet(self, seed: int, index: int) -> GaussianPacket:
+        """The packet of realization ``index`` of ``seed``."""
+        from . import _core
+
+        center, wavenumber, width = _core.draw_packet(self.config(None), seed, index)
+        return GaussianPacket(center, wavenumber, width)
+
+
+@dataclass(frozen=True)
+class PacketList:
+    """An explicit list of initial states; realization ``r`` starts from ``packets[r % len]``."""
+
+    packets: tuple
+
+    def __init__(self, packets) -> None:
+        packets = tuple(packets)
+        if not packets:
+            raise InvalidParameterError("PacketList needs at least one packet")
+        for packet in packets:
+            if not isinstance(packet, (GaussianPacket, Wavefunction)):
+                raise InvalidTypeError(
+                    f"PacketList entries must be GaussianPacket or Wavefunction, got {type(packet).__name__}"
+                )
+        object.__setattr__(self, "packets", packets)
+
+    def validate(self, grid: Grid) -> None:
+        for packet in self.packets:
+            packet.validate(grid)
+
+    def mean_kinetic(self, model, dx: float) -> float:
+        return min(packet.mean_kinetic(model, dx) for packet in self.packets)
+
+    def config(self, grid: Grid) -> dict:
+        return {"kind": "list", "values": np.stack([p.values(grid) for p in self.packets]).astype(np.complex128)}
+
+    def packet(self, seed: int, index: int):
+        return self.packets[index % len(self.packets)]

@@ -235,13 +235,16 @@ def propagate(
     core runs and Ctrl-C stops it within a fraction of a second.
     """
     check_system(system)
+    seed = _checks.integer("seed", seed, minimum=0)
+    index = _checks.integer("index", index, minimum=0)
+    if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
+        packet.validate(system.grid)
+        packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
     check_packet(system, packet)
     duration = _checks.positive("duration", duration)
     step = _checks.positive("step", step)
     splitting = resolve_splitting(order, splitting)
     _checks.choice("precision", precision, PRECISIONS)
-    seed = _checks.integer("seed", seed, minimum=0)
-    index = _checks.integer("index", index, minimum=0)
     steps = steps_for(duration, step)
     pauses = pauses_for(snapshots, step, steps)
     bounds = detector_bounds(system, detector)

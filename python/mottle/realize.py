@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import _checks
+from . import _checks, _core
 from .system import System
 
 
@@ -18,6 +18,9 @@ def realize(system: System, seed: int = 0, index: int = 0) -> np.ndarray:
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)
     potential = system.static_potential()
-    if system.disorder is not None:
-        raise NotImplementedError("disorder generation lands with the ensemble issue")
-    return potential
+    if system.disorder is None:
+        return potential
+    grid = system.grid
+    line = {"points": grid.points, "dx": grid.dx, "start": grid.start}
+    terms = [term.config() for term in system.disorder.terms]
+    return _core.realize(line, terms, potential, seed, index)

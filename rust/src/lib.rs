@@ -3,9 +3,13 @@
 //! `bindings`, built with the `python` feature).
 
 pub mod classical;
+pub mod disorder;
+pub mod ensemble;
 pub mod error;
 pub mod observables;
+pub mod packets;
 pub mod propagate;
+pub mod random;
 pub mod real;
 pub mod splitting;
 pub mod stepper;

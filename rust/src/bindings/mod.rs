@@ -20,6 +20,8 @@ use crate::real::Real;
 use crate::splitting::Splitting;
 use crate::stepper::{Setup, Shared};
 
+mod ensemble;
+
 /// How long the waiting thread sleeps between looks for Ctrl-C.
 const SIGNAL_POLL: Duration = Duration::from_millis(20);
 
@@ -33,7 +35,7 @@ impl From<CoreError> for BindingError {
     }
 }
 
-fn to_pyerr(py: Python<'_>, error: CoreError) -> PyErr {
+pub(crate) fn to_pyerr(py: Python<'_>, error: CoreError) -> PyErr {
     let class_name = match &error {
         CoreError::InvalidInput(_) => "InvalidParameterError",
         CoreError::Interrupted => return PyKeyboardInterrupt::new_err("interrupted"),
@@ -59,7 +61,7 @@ impl BindingError {
 
 /// Run `work` on its own thread with the GIL released; between short waits
 /// check for signals and raise the cancel flag on Ctrl-C. Panics become errors.
-fn run_detached<R, F>(py: Python<'_>, work: F) -> PyResult<R>
+pub(crate) fn run_detached<R, F>(py: Python<'_>, work: F) -> PyResult<R>
 where
     R: Send,
     F: FnOnce(&AtomicBool) -> Result<R, CoreError> + Send,
@@ -111,7 +113,7 @@ fn panic_message(panic: &Box<dyn std::any::Any + Send>) -> String {
 /// The scalar part of a run's configuration, read from a dict.
 #[derive(FromPyObject)]
 #[pyo3(from_item_all)]
-struct SetupConfig {
+pub(crate) struct SetupConfig {
     points: usize,
     dx: f64,
     start: f64,
@@ -135,7 +137,7 @@ struct RunConfig {
     precision: String,
 }
 
-fn build_setup(
+pub(crate) fn build_setup(
     config: SetupConfig,
     kinetic: Vec<f64>,
     absorption: Vec<f64>,
@@ -184,7 +186,7 @@ fn run_in<T: Real>(
     propagate(&shared, &request, cancel)
 }
 
-fn observations_dict<'py>(
+pub(crate) fn observations_dict<'py>(
     py: Python<'py>,
     observations: &[Observation],
 ) -> PyResult<Bound<'py, PyDict>> {
@@ -284,6 +286,7 @@ fn propagate_one<'py>(
 #[pyo3(name = "_core")]
 fn core_module(module: &Bound<'_, PyModule>) -> PyResult<()> {
     module.add_function(wrap_pyfunction!(propagate_one, module)?)?;
+    ensemble::register(module)?;
     module.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

@@ -1,0 +1,370 @@
+"""Ensembles: many realizations of disorder and initial packets, reduced to statistics.
+
+Realizations run in fixed chunks of :data:`CHUNK`; a chunk's sums depend only
+on its realizations, and chunks are folded in index order, so every aggregate
+is bitwise the same for any thread count, task size or worker layout.
+Memory stays O(threads x points x snapshots) plus the scalar samples,
+independent of the number of realizations.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field, fields
+
+import numpy as np
+
+from . import _checks, _core
+from .errors import InvalidParameterError, InvalidTypeError
+from .packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
+from .propagate import (
+    check_system,
+    detector_bounds,
+    pauses_for,
+    resolve_splitting,
+    setup_config,
+    steps_for,
+    warn_if_coarse,
+)
+from .realize import realize
+from .statistics import Stat
+from .system import System
+
+CHUNK: int = _core.CHUNK
+"""Realizations per chunk: the unit of work and of reproducible reduction."""
+
+_SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right")
+_PER_SNAPSHOT = ("position", "position_squared", "participation")
+_PROFILES = ("density", "density_squared", "log_density", "log_density_squared", "momentum")
+
+
+def default_threads() -> int:
+    """The cores this process may use."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:
+        return os.cpu_count() or 1
+
+
+@dataclass
+class EnsemblePartial:
+    """Realizations ``start .. start + count`` of an ensemble, as chunks not yet folded.
+
+    Plain numpy arrays only, so it pickles (a Dask task returns one).
+    """
+
+    start: int
+    chunks: list = field(default_factory=list)
+
+    @property
+    def count(self) -> int:
+        return sum(int(chunk["count"]) for chunk in self.chunks)
+
+
+class _Fold:
+    """Folds chunks in index order: samples concatenated, profiles summed."""
+
+    def __init__(self) -> None:
+        self.samples: dict[str, list] = {name: [] for name in _SCALARS + _PER_SNAPSHOT}
+        self.sums: dict[str, np.ndarray] | None = None
+        self.next_start = 0
+        self.count = 0
+
+    def add(self, chunk: dict) -> None:
+        if int(chunk["start"]) != self.next_start:
+            raise InvalidParameterError(
+                f"chunks must be folded in index order: expected one starting at {self.next_start}, "
+                f"got {int(chunk['start'])}"
+            )
+        for name in self.samples:
+            self.samples[name].append(np.asarray(chunk[name]))
+        if self.sums is None:
+            self.sums = {name: np.array(chunk[name], dtype=float, copy=True) for name in _PROFILES}
+        else:
+            for name in _PROFILES:
+                np.add(self.sums[name], chunk[name], out=self.sums[name])
+        self.count += int(chunk["count"])
+        self.next_start += int(chunk["count"])
+
+    def transmission(self) -> np.ndarray:
+        return np.concatenate(self.samples["transmission"]) if self.samples["transmission"] else np.zeros(0)
+
+
+@dataclass(frozen=True, eq=False)
+class EnsembleResult:
+    """Statistics of an ensemble of runs.
+
+    ``transmission`` and ``reflection`` are :class:`Stat` records over
+    realizations (``.mean``, ``.stderr``, ``.typical = exp<ln T>``...);
+    ``samples`` holds the per-realization values in index order
+    (``transmission``, ``reflection``, ``norm``, ``absorbed_left``,
+    ``absorbed_right``; ``position``, ``position_squared`` and ``participation``
+    as ``(count, snapshots)``). Profiles are means over realizations at each
+    snapshot: ``density`` (``<|psi|^2>``), ``log_density`` (``<ln |psi|^2>``, the
+    density floored at 1e-300 first), their standard errors, and ``momentum``
+    (``<|phi(k)|^2>`` at the increasing wavenumbers ``k``, normalized so that
+    ``sum momentum dk = norm``). ``second_moment`` is the mean over realizations
+    of ``<(x - <x>)^2>`` and ``participation`` the mean inverse participation
+    ratio ``sum |psi|^4 dx / (sum |psi|^2 dx)^2`` (1/length), per snapshot.
+    """
+
+    count: int
+    seed: int
+    times: np.ndarray
+    x: np.ndarray
+    k: np.ndarray
+    samples: dict
+    density: np.ndarray
+    density_stderr: np.ndarray
+    log_density: np.ndarray
+    log_density_stderr: np.ndarray
+    momentum: np.ndarray
+
+    @property
+    def transmission(self) -> Stat:
+        return Stat.of(self.samples["transmission"])
+
+    @property
+    def reflection(self) -> Stat:
+        return Stat.of(self.samples["reflection"])
+
+    @property
+    def norm(self) -> Stat:
+        return Stat.of(self.samples["norm"])
+
+    @property
+    def position(self) -> np.ndarray:
+        return np.mean(self.samples["position"], axis=0)
+
+    @property
+    def second_moment(self) -> np.ndarray:
+        variance = self.samples["position_squared"] - self.samples["position"] ** 2
+        return np.mean(variance, axis=0)
+
+    @property
+    def participation(self) -> np.ndarray:
+        return np.mean(self.samples["participation"], axis=0)
+
+    def to_arrays(self) -> dict[str, np.ndarray]:
+        """Every field as a numpy array (samples prefixed ``samples/``), for stores."""
+        arrays: dict[str, np.ndarray] = {}
+        for item in fields(self):
+            value = getattr(self, item.name)
+            if item.name == "samples":
+                arrays.update({f"samples/{name}": np.asarray(v) for name, v in value.items()})
+            else:
+                arrays[item.name] = np.asarray(value)
+        return arrays
+
+    @classmethod
+    def from_arrays(cls, arrays: dict) -> EnsembleResult:
+        """The inverse of :meth:`to_arrays` (exact)."""
+        samples = {key.split("/", 1)[1]: np.asarray(v) for key, v in arrays.items() if key.startswith("samples/")}
+        values = {}
+        for item in fields(cls):
+            if item.name == "samples":
+                continue
+            value = np.asarray(arrays[item.name])
+            values[item.name] = int(value) if item.name in ("count", "seed") else value
+        return cls(samples=samples, **values)
+
+
+def _finish(fold: _Fold, seed: int, times: np.ndarray, system: System) -> EnsembleResult:
+    count = fold.count
+    if count == 0 or fold.sums is None:
+        raise InvalidParameterError("an ensemble needs at least one realization")
+    samples = {name: np.concatenate(values) for name, values in fold.samples.items()}
+    snapshots = times.size
+    for name in _PER_SNAPSHOT:
+        samples[name] = samples[name].reshape(count, snapshots)
+    sums = fold.sums
+
+    def mean_and_stderr(total, total_squared):
+        mean = total / count
+        if count < 2:
+            return mean, np.full_like(mean, np.nan)
+        variance = np.maximum(total_squared / count - mean**2, 0.0) * count / (count - 1)
+        return mean, np.sqrt(variance / count)
+
+    density, density_stderr = mean_and_stderr(sums["density"], sums["density_squared"])
+    log_density, log_density_stderr = mean_and_stderr(sums["log_density"], sums["log_density_squared"])
+    momentum = np.fft.fftshift(sums["momentum"] / count, axes=-1)
+    return EnsembleResult(
+        count=count,
+        seed=seed,
+        times=times,
+        x=np.asarray(system.grid.x),
+        k=np.fft.fftshift(np.asarray(system.grid.k)),
+        samples=samples,
+        density=density,
+        density_stderr=density_stderr,
+        log_density=log_density,
+        log_density_stderr=log_density_stderr,
+        momentum=momentum,
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class _Plan:
+    """Everything a call to the core needs, validated once."""
+
+    system: System
+    setup: dict
+    run: dict
+    kinetic: np.ndarray
+    absorption: np.ndarray
+    static: np.ndarray
+    disorder: list
+    packets: dict
+    times: np.ndarray
+    seed: int
+
+
+def _packet_config(system: System, packet) -> dict:
+    if isinstance(packet, (GaussianPacket, Wavefunction)):
+        return {"kind": "fixed", "values": packet.values(system.grid).astype(np.complex128)}
+    return packet.config(system.grid)
+
+
+def _default_detector(system: System, detector):
+    if detector is None and system.disorder is not None:
+        return (system.disorder.start, system.disorder.stop)
+    return detector
+
+
+def plan(
+    system, packet, duration, step, seed=0, order=2, detector=None, snapshots=(), precision="double", splitting=None
+) -> _Plan:
+    """Validate an ensemble's arguments before anything large is allocated."""
+    check_system(system)
+    if not isinstance(packet, (GaussianPacket, Wavefunction, RandomPacket, PacketList)):
+        raise InvalidTypeError(
+            "packet must be a GaussianPacket, Wavefunction, RandomPacket or PacketList, "
+            f"got {type(packet).__name__}"
+        )
+    packet.validate(system.grid)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    seed = _checks.integer("seed", seed, minimum=0)
+    splitting = resolve_splitting(order, splitting)
+    _checks.choice("precision", precision, ("double", "single"))
+    steps = steps_for(duration, step)
+    pauses = pauses_for(snapshots, step, steps)
+    bounds = detector_bounds(system, _default_detector(system, detector))
+    first = packet if isinstance(packet, (GaussianPacket, Wavefunction)) else packet.packet(seed, 0)
+    warn_if_coarse(system, first, step, realize(system, seed, 0))
+    terms = [] if system.disorder is None else [term.config() for term in system.disorder.terms]
+    return _Plan(
+        system=system,
+        setup=setup_config(system, step, splitting),
+        run={"steps": steps, "pauses": pauses, "detector": bounds, "seed": seed, "precision": precision},
+        kinetic=system.kinetic_table(),
+        absorption=system.absorption(),
+        static=system.static_potential(),
+        disorder=terms,
+        packets=_packet_config(system, packet),
+        times=np.asarray(pauses, dtype=float) * step,
+        seed=seed,
+    )
+
+
+def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
+    run = dict(plan.run, start=start, count=count, threads=threads)
+    return _core.ensemble_chunks(
+        plan.setup, run, plan.kinetic, plan.absorption, plan.static, plan.disorder, plan.packets
+    )
+
+
+def _threads(threads) -> int:
+    return default_threads() if threads is None else _checks.integer("threads", threads, minimum=1)
+
+
+def ensemble(
+    system: System,
+    packet,
+    duration: float,
+    step: float,
+    realizations: int,
+    seed: int = 0,
+    order: int = 2,
+    detector=None,
+    snapshots=(),
+    threads: int | None = None,
+    target_stderr: float | None = None,
+    precision: str = "double",
+    progress=None,
+    splitting: str | None = None,
+) -> EnsembleResult:
+    """Propagate ``realizations`` realizations and reduce them to statistics.
+
+    Realization ``r`` uses disorder realization ``r`` of ``seed`` and, for a
+    :class:`RandomPacket` or :class:`PacketList`, packet ``r``; it equals
+    ``propagate(system, packet, ..., seed=seed, index=r)``. ``detector=(left, right)``
+    defaults to the disorder region. With ``target_stderr``, chunks run until
+    the transmission's standard error falls below it (checked after every
+    chunk, so the stopping point does not depend on ``threads``) or
+    ``realizations`` is reached. ``precision="single"`` propagates in f32
+    (probabilities still summed in f64): transmissions agree with double to
+    about 1e-5 absolute. ``progress(done, total)`` is called between chunks.
+    Ctrl-C stops within a second.
+    """
+    realizations = _checks.integer("realizations", realizations, minimum=1)
+    threads = _threads(threads)
+    if target_stderr is not None:
+        target_stderr = _checks.positive("target_stderr", target_stderr)
+    prepared = plan(system, packet, duration, step, seed, order, detector, snapshots, precision, splitting)
+    if target_stderr is not None and prepared.run["detector"] is None:
+        raise InvalidParameterError("target_stderr needs a detector (or disorder to default it to)")
+    fold = _Fold()
+    wave = CHUNK * max(2 * threads, 1)
+    start = 0
+    while start < realizations:
+        count = min(wave, realizations - start)
+        for chunk in _run_chunks(prepared, start, count, threads):
+            fold.add(chunk)
+            if progress is not None:
+                progress(fold.count, realizations)
+            if target_stderr is not None and fold.count >= 2:
+                transmission = fold.transmission()
+                if np.std(transmission, ddof=1) / math.sqrt(transmission.size) < target_stderr:
+                    return _finish(fold, prepared.seed, prepared.times, system)
+        start += count
+    return _finish(fold, prepared.seed, prepared.times, system)
+
+
+def ensemble_partial(
+    system: System,
+    packet,
+    duration: float,
+    step: float,
+    start: int,
+    count: int,
+    seed: int = 0,
+    order: int = 2,
+    detector=None,
+    snapshots=(),
+    threads: int | None = None,
+    precision: str = "double",
+    splitting: str | None = None,
+) -> EnsemblePartial:
+    """Realizations ``start .. start + count`` (``start`` a multiple of :data:`CHUNK`), unfolded.
+
+    :func:`merge_partials` of consecutive partials equals :func:`ensemble` on
+    the same realizations, bit for bit.
+    """
+    start = _checks.integer("start", start, minimum=0)
+    count = _checks.integer("count", count, minimum=1)
+    if start % CHUNK:
+        raise InvalidParameterError(f"start {start} must be a multiple of mottle.CHUNK = {CHUNK}")
+    prepared = plan(system, packet, duration, step, seed, order, detector, snapshots, precision, splitting)
+    return EnsemblePartial(start=start, chunks=list(_run_chunks(prepared, start, count, _threads(threads))))
+
+
+def merge_partials(partials, system: System, seed: int, times) -> EnsembleResult:
+    """Fold consecutive partials (in index order, from realization 0) into a result."""
+    fold = _Fold()
+    for partial in sorted(partials, key=lambda p: p.start):
+        for chunk in partial.chunks:
+            fold.add(chunk)
+    return _finish(fold, seed, np.asarray(times, dtype=float), system)

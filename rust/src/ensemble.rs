@@ -1,0 +1,199 @@
+//! Many realizations at once: rayon over fixed chunks of realizations, each
+//! chunk summed in index order, chunks returned in order.
+//!
+//! Reproducibility: a chunk's sums depend only on the realizations it holds
+//! (fixed size `CHUNK`, fixed start), and the caller folds chunks in index
+//! order, so aggregates are bitwise the same for any number of threads, tasks
+//! or workers. Memory per chunk in flight: five `snapshots x points` arrays.
+
+use std::sync::atomic::{AtomicBool, Ordering};
+
+use num_complex::{Complex, Complex64};
+use rayon::prelude::*;
+
+use crate::disorder::{Line, Realizer, Term};
+use crate::error::{invalid, CoreError};
+use crate::observables::{observe, wavenumbers, Detector};
+use crate::packets::PacketSource;
+use crate::propagate::validate_pauses;
+use crate::real::{density, narrow, Real};
+use crate::stepper::{Shared, Stepper};
+
+/// Realizations per chunk: part of the reproducibility contract.
+pub const CHUNK: usize = 16;
+
+/// Densities below this are floored before the logarithm (ln = -690.8).
+pub const DENSITY_FLOOR: f64 = 1e-300;
+
+/// What every realization of an ensemble shares.
+#[derive(Debug, Clone)]
+pub struct Spec {
+    pub static_potential: Vec<f64>,
+    pub disorder: Vec<Term>,
+    pub packets: PacketSource,
+    pub steps: usize,
+    pub pauses: Vec<usize>,
+    pub detector: Option<Detector>,
+    pub seed: u64,
+}
+
+/// One chunk's per-realization samples and summed profiles.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Chunk {
+    pub start: usize,
+    pub count: usize,
+    pub transmission: Vec<f64>,
+    pub reflection: Vec<f64>,
+    pub norm: Vec<f64>,
+    pub absorbed_left: Vec<f64>,
+    pub absorbed_right: Vec<f64>,
+    /// `count x snapshots`, realization-major.
+    pub position: Vec<f64>,
+    pub position_squared: Vec<f64>,
+    /// Inverse participation ratio `sum |psi|^4 dx / (sum |psi|^2 dx)^2`.
+    pub participation: Vec<f64>,
+    /// Sums over the chunk, `snapshots x points`.
+    pub density: Vec<f64>,
+    pub density_squared: Vec<f64>,
+    pub log_density: Vec<f64>,
+    pub log_density_squared: Vec<f64>,
+    /// Momentum density `|phi(k)|^2` (FFT order) with `sum n(k) dk = norm`.
+    pub momentum: Vec<f64>,
+}
+
+fn line(shared_points: usize, dx: f64, start: f64) -> Line {
+    Line {
+        points: shared_points,
+        dx,
+        start,
+    }
+}
+
+/// Run realizations `start .. start + count` in chunks of `CHUNK` (the first
+/// chunk starts at `start`, which must be a multiple of `CHUNK`) on the current
+/// rayon pool.
+pub fn run_chunks<T: Real>(
+    shared: &Shared<T>,
+    spec: &Spec,
+    start: usize,
+    count: usize,
+    cancel: &AtomicBool,
+) -> Result<Vec<Chunk>, CoreError> {
+    let setup = &shared.setup;
+    if start % CHUNK != 0 {
+        return invalid(format!(
+            "start {start} must be a multiple of the chunk size {CHUNK}"
+        ));
+    }
+    if spec.static_potential.len() != setup.points {
+        return invalid(format!(
+            "static potential has {} values; the grid has {}",
+            spec.static_potential.len(),
+            setup.points
+        ));
+    }
+    validate_pauses(&spec.pauses, spec.steps)?;
+    spec.packets.validate(setup.points)?;
+    if let Some(detector) = spec.detector {
+        if detector.left_end > detector.right_start || detector.right_start > setup.points {
+            return invalid(format!(
+                "detector {detector:?} does not fit the grid of {} points",
+                setup.points
+            ));
+        }
+    }
+    let grid = line(setup.points, setup.dx, setup.start);
+    // Fail on bad disorder before any thread starts.
+    Realizer::new(grid, &spec.disorder)?;
+    let starts: Vec<usize> = (start..start + count).step_by(CHUNK).collect();
+    starts
+        .into_par_iter()
+        .map(|first| {
+            let size = CHUNK.min(start + count - first);
+            run_chunk(shared, spec, grid, first, size, cancel)
+        })
+        .collect()
+}
+
+fn run_chunk<T: Real>(
+    shared: &Shared<T>,
+    spec: &Spec,
+    grid: Line,
+    first: usize,
+    count: usize,
+    cancel: &AtomicBool,
+) -> Result<Chunk, CoreError> {
+    let n = grid.points;
+    let snapshots = spec.pauses.len();
+    let profile = snapshots * n;
+    let mut chunk = Chunk {
+        start: first,
+        count,
+        density: vec![0.0; profile],
+        density_squared: vec![0.0; profile],
+        log_density: vec![0.0; profile],
+        log_density_squared: vec![0.0; profile],
+        momentum: vec![0.0; profile],
+        ..Chunk::default()
+    };
+    let mut realizer = Realizer::new(grid, &spec.disorder)?;
+    let mut stepper = Stepper::new(shared);
+    let mut potential = vec![0.0; n];
+    let mut initial = vec![Complex64::new(0.0, 0.0); n];
+    let mut psi = vec![Complex::new(T::zero(), T::zero()); n];
+    let mut buffer = psi.clone();
+    let k = wavenumbers(n, grid.dx);
+    let momentum_scale = grid.dx * grid.dx / (2.0 * std::f64::consts::PI);
+    for index in first..first + count {
+        if cancel.load(Ordering::Relaxed) {
+            return Err(CoreError::Interrupted);
+        }
+        potential.copy_from_slice(&spec.static_potential);
+        realizer.add_to(spec.seed, index as u64, &mut potential)?;
+        stepper.prepare(&potential)?;
+        spec.packets
+            .fill(grid, spec.seed, index as u64, &mut initial)?;
+        psi.iter_mut()
+            .zip(&initial)
+            .for_each(|(z, &w)| *z = narrow(w));
+        let mut done = 0;
+        for (s, &pause) in spec.pauses.iter().enumerate() {
+            stepper.advance(&mut psi, pause - done, cancel)?;
+            done = pause;
+            let observation = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
+            chunk.position.push(observation.position);
+            chunk.position_squared.push(observation.position_squared);
+            let row = s * n..(s + 1) * n;
+            let mut quartic = 0.0;
+            for ((((&z, d), d2), l), l2) in psi
+                .iter()
+                .zip(&mut chunk.density[row.clone()])
+                .zip(&mut chunk.density_squared[row.clone()])
+                .zip(&mut chunk.log_density[row.clone()])
+                .zip(&mut chunk.log_density_squared[row.clone()])
+            {
+                let rho = density(z);
+                let log = rho.max(DENSITY_FLOOR).ln();
+                quartic += rho * rho;
+                *d += rho;
+                *d2 += rho * rho;
+                *l += log;
+                *l2 += log * log;
+            }
+            chunk
+                .participation
+                .push(quartic * grid.dx / (observation.norm * observation.norm));
+            for (&z, m) in buffer.iter().zip(&mut chunk.momentum[row]) {
+                *m += density(z) * momentum_scale;
+            }
+        }
+        stepper.advance(&mut psi, spec.steps - done, cancel)?;
+        let last = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
+        chunk.transmission.push(last.transmission);
+        chunk.reflection.push(last.reflection);
+        chunk.norm.push(last.norm);
+        chunk.absorbed_left.push(last.absorbed.left);
+        chunk.absorbed_right.push(last.absorbed.right);
+    }
+    Ok(chunk)
+}
