@@ -1,0 +1,122 @@
+"""``mottle demo``: a matter-wave packet crossing a speckled stretch of a waveguide.
+
+A slow atomic packet (k0 = 1, rms width 10, hbar = m = 1) is launched along a
+one-dimensional guide towards a region lit by a repulsive optical speckle of
+grain size sigma_R = 0.5 (k0 sigma_R = 0.5, inside the Born regime of a speckle,
+whose mobility edge is at k sigma_R = 1). The study sweeps the speckle strength
+and the length of the speckled region; the report fits the localization length
+to <ln T> = a - 2L/xi and the demo prints it beside the Born prediction
+xi = 1/gamma, gamma = C~(2k)/(2k^2) for the speckle's power spectrum
+(Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007)). It runs 2304
+propagations: about half a minute on two cores.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+STUDY = """\
+# mottle demo: a matter-wave packet crossing a speckled stretch of a waveguide.
+[study]
+title = "Matter wave through a speckled guide"
+notes = "Transmission against speckle strength and length; xi from <ln T> = a - 2L/xi."
+
+[system]
+points = 1024
+length = 240.0
+center = 10.0                 # the box spans [-110, 130)
+model = "continuum"
+absorber = { width = 20.0 }   # design energy 0.05, a tenth of the packet's
+
+[[system.disorder]]
+kind = "speckle"
+strength = 0.2
+correlation_length = 0.5      # the grain size sigma_R
+start = 0.0
+stop = 40.0
+sign = 1                      # repulsive (blue-detuned)
+
+[packet]
+center = -60.0
+wavenumber = 1.0
+width = 10.0                  # narrow in k (rms 0.05): close to a single energy
+
+[run]
+duration = 200.0
+step = 0.1
+realizations = 192
+seed = 2026
+snapshots = [100.0, 200.0]    # the detector defaults to the speckled region
+
+[sweep]
+"system.disorder.0.strength" = [0.1, 0.2, 0.3]
+"system.disorder.0.stop" = [20.0, 40.0, 60.0, 80.0]
+"""
+
+
+@dataclass
+class DemoOutcome:
+    study: Path
+    store: Path
+    figures: Path
+    seconds: float
+    message: str
+
+
+def born_xi(strength: float, correlation_length: float, wavenumber: float) -> float:
+    """Born localization length of a speckle, 1/gamma with gamma = C~(2k)/(2k^2) (hbar = m = 1)."""
+    from .disorder import Speckle
+
+    spectrum = float(Speckle(strength, correlation_length, 0.0, 1.0).power_spectrum(2.0 * wavenumber))
+    gamma = spectrum / (2.0 * wavenumber**2)
+    return 1.0 / gamma if gamma > 0 else math.inf
+
+
+def run_demo(
+    out: str | Path = "mottle-demo", workers=None, threads=None, progress: bool = True
+) -> DemoOutcome:
+    """Write the demo study to ``out``, run it into ``out/demo.h5`` (resuming), draw ``out/figures``."""
+    from .report import report
+    from .runner import run_study
+    from .study import load_study
+
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    study_path = out / "demo.toml"
+    study_path.write_text(STUDY, encoding="utf-8")
+    store_path = out / "demo.h5"
+    study = load_study(study_path)
+    began = time.perf_counter()
+    store = run_study(study, store_path, workers=workers, threads=threads, progress=progress)
+    ran = time.perf_counter() - began
+    written = report(store, out / "figures")
+    seconds = time.perf_counter() - began
+    lines = [
+        written.summary_text.rstrip(),
+        "",
+        "against the Born prediction (Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007));",
+        "expect 10-20 % apart: a packet averages T over its band, and a speckle's odd orders shift xi",
+        "with its sign (Born is the mean of both signs):",
+    ]
+    for fit in written.fits:
+        strength = float(re.search(r"strength=([-+0-9.eE]+)", fit.label).group(1))
+        lines.append(
+            f"  {fit.label}: fitted xi = {fit.xi:.3g} ± {fit.xi_stderr:.2g}, "
+            f"Born xi = {born_xi(strength, 0.5, 1.0):.3g}"
+        )
+    lines += [
+        "",
+        f"demo: {len(study.points)} points, {study.realizations} runs in {ran:.1f} s "
+        f"({seconds:.1f} s with the report)",
+        f"  study:   {study_path}",
+        f"  store:   {store_path}",
+        f"  figures: {out / 'figures'} ({len(written.files)} files)",
+    ]
+    return DemoOutcome(study_path, store_path, out / "figures", seconds, "\n".join(lines))
+
+
+__all__ = ["STUDY", "DemoOutcome", "born_xi", "run_demo"]
