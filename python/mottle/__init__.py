@@ -11,7 +11,10 @@ from .packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, 
 from .potentials import Barrier, Harmonic, Tabulated
 from .propagate import Run, propagate
 from .realize import realize
+from .runner import StudyInterrupted, run_study
 from .statistics import Stat
+from .store import Store, StoreError, open_store
+from .study import Study, StudyError, StudyPoint, load_study
 from .system import System
 
 __version__ = "0.1.0"
@@ -28,6 +31,15 @@ __all__ = [
     "ensemble",
     "ensemble_partial",
     "merge_partials",
+    "Store",
+    "StoreError",
+    "Study",
+    "StudyError",
+    "StudyInterrupted",
+    "StudyPoint",
+    "load_study",
+    "open_store",
+    "run_study",
     "Absorber",
     "Barrier",
     "BoxDisorder",
