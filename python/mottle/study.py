@@ -852,7 +852,7 @@ def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> S
     problems.raise_if_any()
 
     points = []
-    failures: dict[str, list[int]] = {}
+    failures: dict[tuple[str, str], list[int]] = {}
     combos = list(itertools.product(*sweep.values())) if sweep else [()]
     for index, combo in enumerate(combos):
         parameters = dict(zip(sweep, combo, strict=False))
@@ -867,20 +867,16 @@ def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> S
                 build_packet(resolved, system)
                 _check_run(resolved, system)
         except _KeyedError as error:
-            failures.setdefault(f"{problems.where(error.path)}: {error.message}", []).append(index)
+            failures.setdefault((problems.where(error.path), error.message), []).append(index)
         points.append(StudyPoint(index, parameters, resolved, seed, tables))
-    for message, indices in failures.items():
+    for (where, message), indices in failures.items():
         if len(indices) == len(combos) or not sweep:
-            problems.items.append(message)
+            problems.items.append(f"{where}: {message}")
             continue
         first = points[indices[0]]
-        also = (
-            f" (also at {len(indices) - 1} more point{'s' if len(indices) > 2 else ''})"
-            if len(indices) > 1
-            else ""
-        )
-        head, _, tail = message.partition(": ")
-        problems.items.append(f"{head}: at point {first.index} ({first.label()}): {tail}{also}")
+        more = len(indices) - 1
+        also = f" (also at {more} more point{'s' if more > 1 else ''})" if more else ""
+        problems.items.append(f"{where}: at point {first.index + 1} ({first.label()}): {message}{also}")
     problems.raise_if_any()
     return Study(text, source, document, sweep, tuple(points), tables)
 
