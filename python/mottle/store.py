@@ -461,7 +461,7 @@ class StoreWriter:
             listed = "; ".join(changed[:8]) + (f"; and {len(changed) - 8} more" if len(changed) > 8 else "")
             raise StoreError(
                 f"{self.path} holds results of a different study, so it cannot be resumed with this one "
-                f"(stored != given: {listed or 'the number of points'}); choose another store"
+                f"(the store != this study: {listed or 'the number of points'}); choose another store"
             )
 
     def _create(self, handle) -> None:

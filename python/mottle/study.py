@@ -747,7 +747,7 @@ def differences(first: Mapping, second: Mapping) -> list[str]:
     for key in sorted(set(one) | set(two)):
         a, b = one.get(key, "(unset)"), two.get(key, "(unset)")
         if a != b:
-            out.append(f"{key}: {_short(b)} != {_short(a)}")
+            out.append(f"{key}: {_short(a)} != {_short(b)}")
     return out
 
 
