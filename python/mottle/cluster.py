@@ -17,7 +17,9 @@ from __future__ import annotations
 
 import contextlib
 import math
+import signal
 import socket
+import threading
 import time
 import warnings
 from collections.abc import Iterator
@@ -122,17 +124,33 @@ def connect(workers: int | None = None, scheduler=None, threads: int | None = No
         per_worker = threads or max(1, default_threads() // workers)
         import logging
 
-        cluster = distributed.LocalCluster(
-            n_workers=workers,
-            threads_per_worker=per_worker,
-            processes=True,
-            host="127.0.0.1",
-            scheduler_port=0,
-            dashboard_address=None,
-            silence_logs=logging.CRITICAL,
-        )
+        with _workers_ignore_ctrl_c():
+            cluster = distributed.LocalCluster(
+                n_workers=workers,
+                threads_per_worker=per_worker,
+                processes=True,
+                host="127.0.0.1",
+                scheduler_port=0,
+                dashboard_address=None,
+                silence_logs=logging.CRITICAL,
+            )
         with cluster, distributed.Client(cluster) as client:
             yield client
+
+
+@contextlib.contextmanager
+def _workers_ignore_ctrl_c():
+    """Start worker processes with SIGINT ignored (inherited across exec): Ctrl-C in a terminal
+    reaches the whole process group, and the driver, not each worker, should answer it by
+    closing the cluster."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advance) -> Iterator[list]:
@@ -201,8 +219,9 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
                 finished.append((point, result, timing))
             if finished:
                 yield finished
-    except BaseException:
-        client.cancel(futures)
+    except (Exception, KeyboardInterrupt):
+        with contextlib.suppress(Exception):
+            client.cancel(futures)
         raise
 
 
