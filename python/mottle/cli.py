@@ -101,7 +101,10 @@ def _parser() -> argparse.ArgumentParser:
         "--scheduler", metavar="ADDRESS", help="use the Dask cluster at ADDRESS (tcp://host:port)"
     )
     run.add_argument(
-        "--threads", type=_positive_int, metavar="T", help="threads per process (default: all cores, split)"
+        "--threads",
+        type=_positive_int,
+        metavar="T",
+        help="Rust threads in this process, or per Dask task (default: all cores, shared by local workers)",
     )
     run.add_argument("--quiet", action="store_true", help="no progress display or per-point lines")
     run.add_argument(

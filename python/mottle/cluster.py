@@ -5,12 +5,18 @@ A task computes realizations ``[start, start + count)`` of one point with
 and returns the unfolded chunks; the driver folds a point's partials in index
 order with :func:`mottle.merge_partials`, so the numbers do not depend on how
 many workers there were, which worker ran what, or how often a task was
-recomputed after a worker died. Each task sizes the Rust thread pool to its
-worker's threads (Dask workers do not limit rayon themselves).
+recomputed after a worker died.
 
-Task size: enough chunks that every worker thread has one per task, cut so
-that the study makes about eight tasks per worker (so a worker that finishes
-early finds more work and one that dies loses little).
+Threads. Dask runs as many tasks at once on a worker as it has Dask threads,
+and does not limit the Rust (rayon) pool inside them, so each task sizes that
+pool itself: ``threads`` when given, else the cores the worker process may use
+divided by its Dask threads. A local cluster of N workers gets one Dask thread
+per worker (one task at a time) and ``threads = cores // N`` Rust threads per
+task, so the machine is used fully and never oversubscribed.
+
+Task size: enough chunks that every thread of a task has one, cut so that the
+study makes about eight tasks per task slot (so a worker that finishes early
+finds more work and one that dies loses little).
 """
 
 from __future__ import annotations
@@ -65,16 +71,18 @@ def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, co
 
 
 def _worker_threads() -> int:
+    """This worker's cores shared among the tasks it runs at once (its Dask threads)."""
+    from .ensemble import default_threads
+
     try:
         from distributed import get_worker
 
         worker = get_worker()
         state = getattr(worker, "state", None)
-        return int(getattr(state, "nthreads", None) or worker.nthreads)
+        concurrent = int(getattr(state, "nthreads", None) or worker.nthreads)
     except (ImportError, ValueError, AttributeError):
-        from .ensemble import default_threads
-
-        return default_threads()
+        concurrent = 1
+    return max(1, default_threads() // max(concurrent, 1))
 
 
 def _distributed():
@@ -86,27 +94,29 @@ def _distributed():
     return dask, distributed
 
 
-def task_size(points: list[StudyPoint], workers: int, threads_per_worker: int) -> int:
-    """Realizations per task: a multiple of CHUNK, at least one chunk per worker thread."""
+def task_size(points: list[StudyPoint], slots: int, threads_per_task: int) -> int:
+    """Realizations per task: a multiple of CHUNK, at least one chunk per thread of the task."""
     from .ensemble import CHUNK
 
     chunks = sum(math.ceil(point.realizations / CHUNK) for point in points)
-    per_task = max(threads_per_worker, math.ceil(chunks / (TASKS_PER_WORKER * max(workers, 1))))
+    per_task = max(threads_per_task, math.ceil(chunks / (TASKS_PER_WORKER * max(slots, 1))))
     return CHUNK * per_task
 
 
 @contextlib.contextmanager
 def connect(workers: int | None = None, scheduler=None, threads: int | None = None):
-    """A Dask client: a fresh local cluster of ``workers`` processes, or one joined at ``scheduler``.
+    """``(client, threads per task)``: a fresh local cluster of ``workers`` processes, or one joined.
 
     ``scheduler`` is an address (``tcp://host:8786``), a ``distributed.Client``
     (used as it is, left open) or a cluster object (``dask_jobqueue.SLURMCluster``).
+    The threads per task are ``threads``, else for a local cluster the cores
+    divided among its workers, else None (each task decides on its worker).
     """
     dask, distributed = _distributed()
     if workers is not None and scheduler is not None:
         raise InvalidParameterError("give workers (a local cluster) or scheduler (an existing one), not both")
     if isinstance(scheduler, distributed.Client):
-        yield scheduler
+        yield scheduler, threads
         return
     with dask.config.set({"distributed.scheduler.allowed-failures": ALLOWED_FAILURES}):
         if scheduler is not None:
@@ -115,19 +125,19 @@ def connect(workers: int | None = None, scheduler=None, threads: int | None = No
             except (OSError, TimeoutError) as error:
                 raise MottleError(f"cannot reach the Dask scheduler at {scheduler}: {error}") from None
             with client:
-                yield client
+                yield client, threads
             return
         if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
             raise InvalidParameterError(f"workers must be an integer >= 1, got {workers!r}")
         from .ensemble import default_threads
 
-        per_worker = threads or max(1, default_threads() // workers)
+        per_task = threads or max(1, default_threads() // workers)
         import logging
 
         with _workers_ignore_ctrl_c():
             cluster = distributed.LocalCluster(
                 n_workers=workers,
-                threads_per_worker=per_worker,
+                threads_per_worker=1,
                 processes=True,
                 host="127.0.0.1",
                 scheduler_port=0,
@@ -135,7 +145,7 @@ def connect(workers: int | None = None, scheduler=None, threads: int | None = No
                 silence_logs=logging.CRITICAL,
             )
         with cluster, distributed.Client(cluster) as client:
-            yield client
+            yield client, per_task
 
 
 @contextlib.contextmanager
@@ -163,9 +173,9 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
     from .ensemble import merge_partials, plan
 
     layout = client.nthreads()
-    workers = max(1, len(layout))
-    per_worker = threads or (max(layout.values()) if layout else 1)
-    size = task_size(points, workers, per_worker)
+    # Task slots: a worker runs as many tasks at once as it has Dask threads.
+    slots = max(1, sum(layout.values()))
+    size = task_size(points, slots, threads or 1)
     futures = []
     expected = {}
     by_index = {point.index: point for point in points}

@@ -130,8 +130,10 @@ def run_study(
     In-process by default (``threads`` Rust threads, all cores if None);
     ``workers=N`` starts a local Dask cluster of N processes on 127.0.0.1,
     ``scheduler`` joins an existing one (an address, a ``Client`` or a cluster
-    object). With Dask, ``threads`` is the threads per task (default: the
-    worker's). The results are bitwise the same either way. A second call with
+    object). With Dask, ``threads`` is the Rust threads per task (default: the
+    cores divided among the local workers, or on an existing cluster a worker's
+    cores divided by its Dask threads). The results are bitwise the same
+    either way. A second call with
     the same store resumes; a store of another study is refused. Ctrl-C raises
     :class:`StudyInterrupted` after keeping every finished point. Returns the
     store, opened for reading.
@@ -153,8 +155,8 @@ def run_study(
             else:
                 from .cluster import connect, run_on_cluster
 
-                with connect(workers, scheduler, threads) as client:
-                    batches = run_on_cluster(client, todo, threads, display.advance)
+                with connect(workers, scheduler, threads) as (client, task_threads):
+                    batches = run_on_cluster(client, todo, task_threads, display.advance)
                     _consume(batches, writer, display, total, names)
         except KeyboardInterrupt:
             display.close()
