@@ -168,7 +168,7 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
 
     ``advance(realizations)`` is called as each task finishes.
     """
-    from distributed import as_completed
+    from distributed import KilledWorker, as_completed
 
     from .ensemble import merge_partials, plan
 
@@ -177,6 +177,7 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
     slots = max(1, sum(layout.values()))
     size = task_size(points, slots, threads or 1)
     futures = []
+    owner = {}
     expected = {}
     by_index = {point.index: point for point in points}
     times = {}
@@ -188,28 +189,38 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
         times[point.index] = plan(system, packet, **arguments).times
         for start in range(0, point.realizations, size):
             count = min(size, point.realizations - start)
-            futures.append(
-                client.submit(
-                    run_task,
-                    point.resolved,
-                    dict(point.tables),
-                    point.seed,
-                    point.index,
-                    start,
-                    count,
-                    threads,
-                    pure=False,
-                    key=f"mottle-point-{point.index}-{start}-{time.time_ns()}",
-                    # Earlier points first, so that points finish (and are saved) one after another.
-                    priority=len(points) - rank,
-                )
+            future = client.submit(
+                run_task,
+                point.resolved,
+                dict(point.tables),
+                point.seed,
+                point.index,
+                start,
+                count,
+                threads,
+                pure=False,
+                key=f"mottle-point-{point.index}-{start}-{time.time_ns()}",
+                # Earlier points first, so that points finish (and are saved) one after another.
+                priority=len(points) - rank,
             )
+            futures.append(future)
+            owner[future.key] = point
     partials: dict[int, list[TaskOutput]] = {index: [] for index in expected}
-    pending = as_completed(futures, with_results=True)
+    pending = as_completed(futures)
     try:
         for batch in pending.batches():
             ready = []
-            for _future, output in batch:
+            for future in batch:
+                try:
+                    output = future.result()
+                except KilledWorker:
+                    raise
+                except Exception as error:
+                    point = owner[future.key]
+                    raise MottleError(
+                        f"point {point.index + 1} ({point.label()}) failed on a worker: "
+                        f"{type(error).__name__}: {error}"
+                    ) from error
                 partials[output.index].append(output)
                 advance(output.partial.count)
                 if sum(item.partial.count for item in partials[output.index]) == expected[output.index]:

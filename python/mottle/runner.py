@@ -112,7 +112,10 @@ def _in_process(points: list[StudyPoint], threads, advance):
             seen[0] = done
 
         began = time.perf_counter()
-        result = ensemble(system, packet, threads=threads, progress=progress, **arguments)
+        try:
+            result = ensemble(system, packet, threads=threads, progress=progress, **arguments)
+        except MottleError as error:
+            raise MottleError(f"point {point.index + 1} ({point.label()}) failed: {error}") from error
         elapsed = time.perf_counter() - began
         yield [(point, result, {"wall_time": elapsed, "compute_time": elapsed, "host": host})]
 
