@@ -9,6 +9,18 @@ paths such as ``"system.disorder.0.stop"`` to lists of values or to ranges
 ``{ start, stop, count }`` (``scale = "log"`` for geometric spacing); the
 points are the Cartesian product, the first key varying slowest.
 
+Keys (defaults in brackets): ``[system]`` points, length, center [0], model
+["continuum" or "lattice"], hbar [1], mass [1] (continuum), hopping [1]
+(lattice), nonlinearity [0], absorber {width, strength}; potential kinds
+barrier {height, left, right}, harmonic {frequency, center}, tabulated
+{values: a list or a .npy file, read without pickles}; disorder kinds
+white-noise {strength}, box {width}, gaussian {rms, correlation_length},
+speckle {strength, correlation_length, sign [1]}, each with start and stop.
+``[packet]`` center, wavenumber, width. ``[run]`` duration, step,
+realizations, seed [0], seeds ["per-point"], order [2], detector [the
+disorder region, as in :func:`mottle.ensemble`], snapshots [none], precision
+["double"].
+
 Seeds: with ``[run] seeds = "per-point"`` (the default) each point draws its
 own disorder, from a seed derived from the study's ``seed`` and the point's
 swept values (SHA-256, 63 bits): adding values to a sweep leaves the seeds of
