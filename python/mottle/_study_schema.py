@@ -1,0 +1,472 @@
+"""The schema of study files and its checks: types, unknown keys, sweep paths, line numbers.
+
+Everything here works on the parsed TOML (plain dicts); building the specs and
+the points is :mod:`mottle.study`'s.
+"""
+
+from __future__ import annotations
+
+import difflib
+import json
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import InvalidParameterError
+
+NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE = (
+    "a number",
+    "an integer",
+    "a string",
+    "a list of two numbers",
+    "a list of numbers",
+    "a list of numbers or a .npy file name",
+    "a table",
+)
+
+
+@dataclass(frozen=True)
+class Key:
+    kind: str
+    required: bool = False
+    default: object = None
+    choices: tuple = ()
+
+
+def _fields(required: tuple[str, ...], optional: dict | None = None, kind: str = NUMBER) -> dict:
+    spec = {name: Key(kind, required=True) for name in required}
+    for name, default in (optional or {}).items():
+        spec[name] = Key(kind, default=default)
+    return spec
+
+
+POTENTIAL_KINDS = {
+    "barrier": _fields(("height", "left", "right")),
+    "harmonic": _fields(("frequency",), {"center": 0.0}),
+    "tabulated": {"values": Key(VALUES, required=True)},
+}
+DISORDER_KINDS = {
+    "white-noise": _fields(("strength", "start", "stop")),
+    "box": _fields(("width", "start", "stop")),
+    "gaussian": _fields(("rms", "correlation_length", "start", "stop")),
+    "speckle": {
+        **_fields(("strength", "correlation_length", "start", "stop")),
+        "sign": Key(INTEGER, default=1),
+    },
+}
+ARRAYS = {"potential": POTENTIAL_KINDS, "disorder": DISORDER_KINDS}
+MODEL_KEYS = {"continuum": ("hbar", "mass"), "lattice": ("hbar", "hopping")}
+
+SCHEMA: dict[str, dict[str, Key]] = {
+    "study": {"title": Key(STRING, default=""), "notes": Key(STRING, default="")},
+    "system": {
+        "points": Key(INTEGER, required=True),
+        "length": Key(NUMBER, required=True),
+        "center": Key(NUMBER, default=0.0),
+        "model": Key(STRING, default="continuum", choices=tuple(MODEL_KEYS)),
+        "hbar": Key(NUMBER, default=1.0),
+        "mass": Key(NUMBER, default=1.0),
+        "hopping": Key(NUMBER, default=1.0),
+        "nonlinearity": Key(NUMBER, default=0.0),
+        "absorber": Key(TABLE),
+        "potential": Key(TABLE),
+        "disorder": Key(TABLE),
+    },
+    "packet": _fields(("center", "wavenumber", "width")),
+    "run": {
+        "duration": Key(NUMBER, required=True),
+        "step": Key(NUMBER, required=True),
+        "realizations": Key(INTEGER, required=True),
+        "seed": Key(INTEGER, default=0),
+        "seeds": Key(STRING, default="per-point", choices=("per-point", "shared")),
+        "order": Key(INTEGER, default=2),
+        "detector": Key(PAIR),
+        "snapshots": Key(NUMBERS, default=[]),
+        "precision": Key(STRING, default="double", choices=("double", "single")),
+    },
+}
+ABSORBER_KEYS = {"width": Key(NUMBER, required=True), "strength": Key(NUMBER)}
+RANGE_KEYS = ("start", "stop", "count", "scale")
+# Keys that label a study but do not change its results: left out when two studies are compared.
+METADATA_SECTIONS = ("study",)
+
+
+class StudyError(InvalidParameterError):
+    """A study file that cannot run; ``problems`` lists each one as a line naming file, line and key."""
+
+    def __init__(self, problems: list[str]):
+        self.problems = list(problems)
+        super().__init__("\n".join(self.problems))
+
+
+# --------------------------------------------------------------------------- locating keys
+
+
+def _key_lines(text: str) -> dict[tuple[str, ...], int]:
+    """Best-effort map from key path to the 1-based line that sets it (tables, arrays of tables, keys)."""
+    lines: dict[tuple[str, ...], int] = {}
+    table: tuple[str, ...] = ()
+    counters: dict[tuple[str, ...], int] = {}
+    key_part = r'(?:"[^"]*"|\'[^\']*\'|[A-Za-z0-9_-]+)'
+    dotted = rf"{key_part}(?:\s*\.\s*{key_part})*"
+    for number, line in enumerate(text.splitlines(), start=1):
+        if match := re.match(rf"^\s*\[\[\s*({dotted})\s*\]\]", line):
+            path = _split_key(match.group(1))
+            index = counters.get(path, -1) + 1
+            counters[path] = index
+            table = (*path, str(index))
+            lines.setdefault(path, number)
+            lines.setdefault(table, number)
+        elif match := re.match(rf"^\s*\[\s*({dotted})\s*\]", line):
+            table = _split_key(match.group(1))
+            lines.setdefault(table, number)
+        elif match := re.match(rf"^\s*({dotted})\s*=", line):
+            lines.setdefault((*table, *_split_key(match.group(1))), number)
+    return lines
+
+
+def _split_key(key: str) -> tuple[str, ...]:
+    parts = re.findall(r'"([^"]*)"|\'([^\']*)\'|([A-Za-z0-9_-]+)', key)
+    return tuple(next(p for p in part if p) if any(part) else "" for part in parts)
+
+
+class _Problems:
+    """Collects problems, each prefixed by the file name, the line (when known) and the key path."""
+
+    def __init__(self, source: str, text: str):
+        self.source = source
+        self.lines = _key_lines(text)
+        self.items: list[str] = []
+
+    def line_of(self, path: tuple[str, ...]) -> int | None:
+        for length in range(len(path), 0, -1):
+            if path[:length] in self.lines:
+                return self.lines[path[:length]]
+        return None
+
+    def where(self, path: tuple[str, ...]) -> str:
+        line = self.line_of(path)
+        place = self.source if line is None else f"{self.source}:{line}"
+        return f"{place}: {'.'.join(path)}" if path else place
+
+    def add(self, path: tuple[str, ...], message: str) -> None:
+        self.items.append(f"{self.where(path)}: {message}")
+
+    def raise_if_any(self) -> None:
+        if self.items:
+            raise StudyError(self.items)
+
+
+def _did_you_mean(name: str, known) -> str:
+    close = difflib.get_close_matches(name, list(known), n=1, cutoff=0.6)
+    if close:
+        return f"; did you mean {close[0]!r}?"
+    return f"; known keys: {', '.join(sorted(known))}"
+
+
+# --------------------------------------------------------------------------- types
+
+
+def _type_problem(key: Key, value: object) -> str | None:
+    """Why ``value`` cannot be the value of ``key`` (None when its type fits)."""
+
+    def is_number(v):
+        return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+    got = f"got {_describe(value)}"
+    if key.kind == NUMBER and not is_number(value):
+        return f"must be a number, {got}"
+    if key.kind == INTEGER:
+        if isinstance(value, float) and value.is_integer():
+            return None
+        if not isinstance(value, int) or isinstance(value, bool):
+            return f"must be an integer, {got}"
+    if key.kind == STRING:
+        if not isinstance(value, str):
+            return f"must be a string, {got}"
+        if key.choices and value not in key.choices:
+            accepted = " or ".join(repr(c) for c in key.choices)
+            return f"must be {accepted}, got {value!r}{_did_you_mean(value, key.choices)}"
+    if key.kind == PAIR and not (
+        isinstance(value, list) and len(value) == 2 and all(is_number(v) for v in value)
+    ):
+        return f"must be a list of two numbers [left, right], {got}"
+    if key.kind == NUMBERS and not (isinstance(value, list) and all(is_number(v) for v in value)):
+        return f"must be a list of numbers, {got}"
+    if key.kind == VALUES and not (
+        isinstance(value, str) or (isinstance(value, list) and all(is_number(v) for v in value))
+    ):
+        return f"must be a list of numbers or the name of a .npy file, {got}"
+    if key.kind == TABLE and not isinstance(value, dict):
+        return f"must be a table, {got}"
+    return None
+
+
+def _describe(value: object) -> str:
+    if isinstance(value, bool):
+        return f"the boolean {str(value).lower()}"
+    if isinstance(value, str):
+        return f"the string {value!r}"
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list):
+        return f"a list {json.dumps(value, default=str)[:60]}"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    return f"{value!r} of type {type(value).__name__}"
+
+
+def _normalize(key: Key, value: object) -> object:
+    """The canonical form of a value that passed its type check: floats for numbers, ints for integers."""
+    if key.kind == NUMBER:
+        return float(value)
+    if key.kind == INTEGER:
+        return int(value)
+    if key.kind in (PAIR, NUMBERS) and isinstance(value, list):
+        return [float(v) for v in value]
+    if key.kind == VALUES and isinstance(value, list):
+        return [float(v) for v in value]
+    return value
+
+
+# --------------------------------------------------------------------------- schema check of the file
+
+
+def _check_table(table: dict, spec: dict[str, Key], path: tuple[str, ...], problems: _Problems) -> dict:
+    """Type-check ``table`` against ``spec``; returns the normalized entries that passed."""
+    out = {}
+    for name, value in table.items():
+        if name not in spec:
+            problems.add((*path, name), f"unknown key{_did_you_mean(name, spec)}")
+            continue
+        why = _type_problem(spec[name], value)
+        if why:
+            problems.add((*path, name), why)
+            continue
+        out[name] = _normalize(spec[name], value)
+    return out
+
+
+def _check_entries(entries, kinds: dict, path: tuple[str, ...], problems: _Problems) -> list[dict]:
+    if isinstance(entries, dict):
+        entries = [entries]
+    if not isinstance(entries, list) or not all(isinstance(entry, dict) for entry in entries):
+        problems.add(path, f"must be an array of tables ([[{'.'.join(path)}]]), got {_describe(entries)}")
+        return []
+    out = []
+    for index, entry in enumerate(entries):
+        where = (*path, str(index))
+        kind = entry.get("kind")
+        if kind is None:
+            problems.add(where, f"needs a kind: one of {', '.join(map(repr, kinds))}")
+            out.append({"kind": None})
+            continue
+        if kind not in kinds:
+            problems.add(
+                (*where, "kind"),
+                f"unknown kind {kind!r}; accepted: {', '.join(map(repr, kinds))}"
+                f"{_did_you_mean(str(kind), kinds)}",
+            )
+            out.append({"kind": None})
+            continue
+        rest = {k: v for k, v in entry.items() if k != "kind"}
+        out.append({"kind": kind, **_check_table(rest, kinds[kind], where, problems)})
+    return out
+
+
+def _check_document(document: dict, problems: _Problems) -> dict:
+    """The document with every entry type-checked and normalized (bad entries dropped and reported)."""
+    known = (*SCHEMA, "sweep")
+    checked: dict = {}
+    for section, content in document.items():
+        if section not in known:
+            problems.add((section,), f"unknown section{_did_you_mean(section, known)}")
+            continue
+        if not isinstance(content, dict):
+            problems.add((section,), f"must be a table ([{section}]), got {_describe(content)}")
+            continue
+        if section == "sweep":
+            checked["sweep"] = dict(content)
+            continue
+        plain = {k: v for k, v in content.items() if not (section == "system" and k in ("absorber", *ARRAYS))}
+        checked[section] = _check_table(plain, SCHEMA[section], (section,), problems)
+        if section == "system":
+            if "absorber" in content:
+                absorber = content["absorber"]
+                if isinstance(absorber, dict):
+                    checked[section]["absorber"] = _check_table(
+                        absorber, ABSORBER_KEYS, ("system", "absorber"), problems
+                    )
+                else:
+                    problems.add(
+                        ("system", "absorber"),
+                        f"must be a table {{ width = ... }}, got {_describe(absorber)}",
+                    )
+            for name, kinds in ARRAYS.items():
+                if name in content:
+                    checked[section][name] = _check_entries(content[name], kinds, ("system", name), problems)
+    return checked
+
+
+def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | None]:
+    """The schema key a sweep path names, or why it names nothing."""
+    section, rest = path[0], path[1:]
+    if section == "sweep" or section not in SCHEMA:
+        known = [s for s in SCHEMA if s not in METADATA_SECTIONS]
+        return None, f"{section!r} is not a section that can be swept{_did_you_mean(section, known)}"
+    if section in METADATA_SECTIONS:
+        return None, f"[{section}] only labels the study; sweep a key of system, packet or run"
+    if not rest:
+        return (
+            None,
+            f"names the whole [{section}] table; name one of its keys, "
+            f"e.g. {section}.{next(iter(SCHEMA[section]))}",
+        )
+    spec = SCHEMA[section]
+    name = rest[0]
+    if section == "system" and name in ARRAYS:
+        entries = document.get("system", {}).get(name, [])
+        if len(rest) < 3:
+            return (
+                None,
+                f"name an entry and a key, e.g. system.{name}.0.{'stop' if name == 'disorder' else 'height'}",
+            )
+        if not rest[1].isdigit() or int(rest[1]) >= len(entries):
+            have = f"entries 0..{len(entries) - 1}" if entries else "no entries"
+            return None, f"system.{name} has {have}; {rest[1]!r} names none of them"
+        entry = entries[int(rest[1])]
+        kind = entry.get("kind")
+        if kind is None:
+            return None, f"system.{name}.{rest[1]} has no valid kind"
+        if rest[2] == "kind":
+            return None, "the kind of an entry cannot be swept; write one study per kind"
+        fields = ARRAYS[name][kind]
+        if rest[2] not in fields or len(rest) > 3:
+            return None, f"a {kind!r} entry has no key {'.'.join(rest[2:])!r}{_did_you_mean(rest[2], fields)}"
+        return fields[rest[2]], None
+    if section == "system" and name == "absorber":
+        if "absorber" not in document.get("system", {}):
+            return None, "system.absorber is not set in the study; add it to sweep its keys"
+        if len(rest) != 2 or rest[1] not in ABSORBER_KEYS:
+            last = rest[-1] if len(rest) > 1 else ""
+            return None, f"the absorber has no key {'.'.join(rest[1:])!r}{_did_you_mean(last, ABSORBER_KEYS)}"
+        return ABSORBER_KEYS[rest[1]], None
+    if name not in spec or len(rest) > 1:
+        return None, f"[{section}] has no key {'.'.join(rest)!r}{_did_you_mean(name, spec)}"
+    return spec[name], None
+
+
+def _sweep_values(raw: object, key: Key, path: tuple[str, ...], problems: _Problems) -> list | None:
+    where = ("sweep", ".".join(path))
+    if isinstance(raw, dict):
+        unknown = [k for k in raw if k not in RANGE_KEYS]
+        for name in unknown:
+            problems.add(where, f"a range has no key {name!r}{_did_you_mean(name, RANGE_KEYS)}")
+        missing = [k for k in ("start", "stop", "count") if k not in raw]
+        if missing:
+            problems.add(where, f"a range needs start, stop and count; missing {', '.join(missing)}")
+        if unknown or missing:
+            return None
+        start, stop, count, scale = raw["start"], raw["stop"], raw["count"], raw.get("scale", "linear")
+        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in (start, stop)):
+            problems.add(
+                where, f"range start and stop must be numbers, got {_describe(start)} and {_describe(stop)}"
+            )
+            return None
+        if isinstance(count, bool) or not isinstance(count, int) or count < 1:
+            problems.add(where, f"range count must be an integer >= 1, got {_describe(count)}")
+            return None
+        if scale not in ("linear", "log"):
+            problems.add(where, f"range scale must be 'linear' or 'log', got {_describe(scale)}")
+            return None
+        if key.kind not in (NUMBER, INTEGER):
+            problems.add(where, f"a range gives numbers, but {'.'.join(path)} must be {key.kind}")
+            return None
+        if scale == "log" and not (start > 0 and stop > 0):
+            problems.add(where, f"a log range needs start > 0 and stop > 0, got start={start}, stop={stop}")
+            return None
+        if count == 1:
+            values = [float(start)]
+        elif scale == "log":
+            values = np.geomspace(start, stop, count).tolist()
+        else:
+            values = np.linspace(start, stop, count).tolist()
+        if key.kind == INTEGER:
+            rounded = [round(v) for v in values]
+            if any(abs(r - v) > 1e-9 * max(1.0, abs(v)) for r, v in zip(rounded, values, strict=False)):
+                problems.add(where, f"range gives non-integer values {values} for an integer key")
+                return None
+            values = rounded
+        return values
+    if not isinstance(raw, list):
+        problems.add(
+            where, f"must be a list of values or a range {{ start, stop, count }}, got {_describe(raw)}"
+        )
+        return None
+    if not raw:
+        problems.add(where, "the list of values is empty; give at least one")
+        return None
+    values = []
+    for position, value in enumerate(raw):
+        why = _type_problem(key, value)
+        if why:
+            problems.add(where, f"value {position}: {why}")
+            return None
+        values.append(_normalize(key, value))
+    seen = set()
+    for value in values:
+        token = json.dumps(value)
+        if token in seen:
+            problems.add(where, f"the value {value!r} appears twice")
+            return None
+        seen.add(token)
+    return values
+
+
+def _fill_defaults(resolved: dict) -> dict:
+    for section, spec in SCHEMA.items():
+        table = resolved.setdefault(section, {})
+        for name, key in spec.items():
+            if key.kind != TABLE and name not in table and key.default is not None:
+                table[name] = key.default
+    system = resolved["system"]
+    for name in ("mass", "hopping"):
+        if (
+            name not in MODEL_KEYS.get(system["model"], (name,))
+            and system.get(name) == SCHEMA["system"][name].default
+        ):
+            system.pop(name)
+    for name, kinds in ARRAYS.items():
+        for entry in system.setdefault(name, []):
+            for field_name, key in kinds.get(entry.get("kind"), {}).items():
+                if field_name not in entry and key.default is not None:
+                    entry[field_name] = key.default
+    return resolved
+
+
+def _required(resolved: dict, problems: list[tuple[tuple[str, ...], str]]) -> None:
+    for section, spec in SCHEMA.items():
+        for name, key in spec.items():
+            if key.required and name not in resolved.get(section, {}):
+                problems.append(((section, name), f"is required ({key.kind})"))
+    for name, kinds in ARRAYS.items():
+        for index, entry in enumerate(resolved["system"].get(name, [])):
+            for field_name, key in kinds.get(entry.get("kind"), {}).items():
+                if key.required and field_name not in entry:
+                    problems.append((("system", name, str(index), field_name), f"is required ({key.kind})"))
+    absorber = resolved["system"].get("absorber")
+    if absorber is not None and "width" not in absorber:
+        problems.append((("system", "absorber", "width"), f"is required ({NUMBER})"))
+    system = resolved["system"]
+    model = system.get("model", "continuum")
+    other = "lattice" if model == "continuum" else "continuum"
+    for name in MODEL_KEYS[other]:
+        if name not in MODEL_KEYS[model] and name in system:
+            problems.append(
+                (
+                    ("system", name),
+                    f"applies to the {other} model, but model is {model!r} "
+                    f"(it takes {', '.join(MODEL_KEYS[model])})",
+                )
+            )
