@@ -237,9 +237,11 @@ def test_the_store_survives_sigkill_at_random_moments(tmp_path):
         child = subprocess.Popen(
             [sys.executable, "-c", KILLED, str(path), str(tmp_path / "kill.toml")],
             stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
             text=True,
         )
-        assert child.stdout.readline().strip() == "ready"
+        if child.stdout.readline().strip() != "ready":
+            pytest.fail(f"the writer did not start: {child.communicate()[1]}")
         time.sleep(delay)
         child.send_signal(signal.SIGKILL)
         child.wait()
