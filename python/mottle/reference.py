@@ -1,1 +1,349 @@
-"""placeholder"""
+"""A pure-numpy split-step propagator: the oracle of the tests and the baseline of the benchmarks.
+
+It is written to be read, not to be fast, and follows the Rust core's
+conventions exactly, so that the two agree to rounding (the tests hold them to
+1e-10):
+
+* ``psi`` is sampled at the grid points with ``sum |psi|**2 dx = 1``.
+* One step of length ``h`` of a splitting with potential fractions ``a_0..a_m``
+  and kinetic fractions ``b_0..b_{m-1}`` is
+  ``V(a_m h) K(b_{m-1} h) ... V(a_1 h) K(b_0 h) V(a_0 h)`` (rightmost first), with
+  ``K(f h) psi = ifft(exp(-i T(k) f h / hbar) fft(psi))`` and
+  ``V(f h) psi = exp(-i (V + g |psi|**2) f h / hbar) exp(-W f_abs h / hbar) psi``.
+  Between two steps ``V(a_m h) V(a_0 h)`` is applied as the single factor
+  ``V((a_m + a_0) h)``; a run starts and, at every snapshot, pauses with the
+  unmerged factors.
+* The absorbing potential ``-i W`` acts only in the potential factors of positive
+  fraction, with ``f_abs = max(f, 0) / (sum of the positive a_i)`` so that the
+  layers absorb for exactly one step per step (a negative fraction, as in
+  Yoshida's and Blanes-Moan's schemes, would otherwise amplify in the layers).
+* ``g |psi|**2`` uses ``|psi|`` at the start of each potential factor (exact for
+  the real part, whose factor keeps ``|psi|``).
+* The probability removed on each side, ``sum |psi|**2 (1 - exp(-2 W f_abs h/hbar)) dx``
+  over that side's layer, is added up just before each potential factor
+  multiplies, so ``norm + absorbed_left + absorbed_right = 1`` to rounding.
+* Expectation values are those of the probability still in the box, normalized
+  by it; ``<p>`` and ``<T>`` come from ``|fft(psi)|**2``.
+
+The classical fields of the returned :class:`mottle.Run` come from the same
+Stormer-Verlet leapfrog as the core's (a loop in plain Python): Hamilton's
+equations in the piecewise-linear interpolant of the grid potential, with
+sub-steps that cross at most a quarter of a cell; a particle that enters an
+absorbing layer stops there and reads NaN.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import _checks
+from .errors import InvalidParameterError
+from .packets import GaussianPacket, Wavefunction
+from .propagate import (
+    Run,
+    check_packet,
+    check_snapshot_memory,
+    check_system,
+    detector_bounds,
+    initial_phase_space,
+    pauses_for,
+    resolve_splitting,
+    steps_for,
+    warn_if_coarse,
+)
+from .system import System
+
+
+def _strang() -> tuple[list[float], list[float]]:
+    # Strang, SIAM J. Numer. Anal. 5, 506 (1968): V(h/2) K(h) V(h/2).
+    return [0.5, 0.5], [1.0]
+
+
+def _yoshida() -> tuple[list[float], list[float]]:
+    # Yoshida, Phys. Lett. A 150, 262 (1990): Strang steps of w1 h, w0 h, w1 h.
+    cube_root = 2.0 ** (1.0 / 3.0)
+    w1 = 1.0 / (2.0 - cube_root)
+    w0 = -cube_root / (2.0 - cube_root)
+    return [w1 / 2.0, (w1 + w0) / 2.0, (w0 + w1) / 2.0, w1 / 2.0], [w1, w0, w1]
+
+
+def _blanes_moan() -> tuple[list[float], list[float]]:
+    # Blanes & Moan, J. Comput. Appl. Math. 142, 313 (2002), the 6-stage order-4
+    # method, potential outermost; the same numbers as rust/src/splitting.rs.
+    a1 = 0.0792036964311957
+    a2 = 0.353172906049774
+    a3 = -0.0420650803577195
+    a4 = 1.0 - 2.0 * (a1 + a2 + a3)
+    b1 = 0.209515106613362
+    b2 = -0.143851773179818
+    b3 = 0.5 - (b1 + b2)
+    return [a1, a2, a3, a4, a3, a2, a1], [b1, b2, b3, b3, b2, b1]
+
+
+SPLITTING_COEFFICIENTS = {"strang": _strang, "yoshida": _yoshida, "blanes-moan": _blanes_moan}
+
+
+def coefficients(splitting: str) -> tuple[list[float], list[float]]:
+    """``(a, b)``: potential fractions ``a_0..a_m`` and kinetic fractions ``b_0..b_{m-1}`` of a step."""
+    _checks.choice("splitting", splitting, tuple(SPLITTING_COEFFICIENTS))
+    return SPLITTING_COEFFICIENTS[splitting]()
+
+
+class _Propagator:
+    """The state of one run: wavefunction, tables, and the probability absorbed so far."""
+
+    def __init__(self, system: System, potential: np.ndarray, step: float, splitting: str) -> None:
+        grid = system.grid
+        self.hbar = system.hbar
+        self.step = step
+        self.dx = grid.dx
+        self.nonlinearity = system.nonlinearity
+        self.potential = np.asarray(potential, dtype=float)
+        self.kinetic = system.kinetic_table()
+        self.absorption = system.absorption()
+        self.left_end, self.right_start = system.layer_bounds()
+        self.a, self.b = coefficients(splitting)
+        positive_total = sum(max(f, 0.0) for f in self.a)
+        self.absorbing = [max(f, 0.0) / positive_total for f in self.a]
+        self.absorbed_left = 0.0
+        self.absorbed_right = 0.0
+        self._kinetic_factors: dict[float, np.ndarray] = {}
+        self._potential_factors: dict[tuple[float, float], tuple[np.ndarray, np.ndarray, float]] = {}
+
+    def kinetic_factor(self, fraction: float) -> np.ndarray:
+        if fraction not in self._kinetic_factors:
+            self._kinetic_factors[fraction] = np.exp(-1j * self.kinetic * fraction * self.step / self.hbar)
+        return self._kinetic_factors[fraction]
+
+    def potential_factor(self, fraction: float, absorbing: float) -> tuple[np.ndarray, np.ndarray, float]:
+        """The factor ``exp(-i V f h/hbar) exp(-W f_abs h/hbar)``, the layers' loss
+        ``1 - exp(-2 W f_abs h/hbar)`` and the nonlinear angle ``-g f h/hbar``."""
+        key = (fraction, absorbing)
+        if key not in self._potential_factors:
+            h = self.step / self.hbar
+            factor = np.exp(-absorbing * h * self.absorption) * np.exp(-1j * fraction * h * self.potential)
+            loss = -np.expm1(-2.0 * absorbing * h * self.absorption)
+            self._potential_factors[key] = (factor, loss, -self.nonlinearity * fraction * h)
+        return self._potential_factors[key]
+
+    def apply_potential(self, psi: np.ndarray, fraction: float, absorbing: float) -> np.ndarray:
+        factor, loss, nonlinear_angle = self.potential_factor(fraction, absorbing)
+        density = np.abs(psi) ** 2
+        # What the layers remove is counted before the factor acts, from the same |psi|.
+        left, right = slice(0, self.left_end), slice(self.right_start, None)
+        self.absorbed_left += float(np.sum(density[left] * loss[left])) * self.dx
+        self.absorbed_right += float(np.sum(density[right] * loss[right])) * self.dx
+        psi = psi * factor
+        if nonlinear_angle != 0.0:
+            psi = psi * np.exp(1j * nonlinear_angle * density)
+        return psi
+
+    def apply_kinetic(self, psi: np.ndarray, fraction: float) -> np.ndarray:
+        return np.fft.ifft(self.kinetic_factor(fraction) * np.fft.fft(psi))
+
+    def advance(self, psi: np.ndarray, steps: int) -> np.ndarray:
+        """``steps`` whole steps, from a paused state to a paused state."""
+        a, b, absorbing = self.a, self.b, self.absorbing
+        m = len(b)
+        for step in range(steps):
+            for stage in range(m):
+                if stage == 0 and step > 0:
+                    # The closing V(a_m h) of the previous step merged with this step's V(a_0 h).
+                    psi = self.apply_potential(psi, a[m] + a[0], absorbing[m] + absorbing[0])
+                else:
+                    psi = self.apply_potential(psi, a[stage], absorbing[stage])
+                psi = self.apply_kinetic(psi, b[stage])
+        if steps > 0:
+            psi = self.apply_potential(psi, a[m], absorbing[m])
+        return psi
+
+    def observe(self, psi: np.ndarray, x: np.ndarray, k: np.ndarray, bounds) -> dict:
+        """Norm and expectation values of the probability in the box, normalized by it."""
+        density = np.abs(psi) ** 2
+        in_box = float(np.sum(density))
+        spectrum = np.abs(np.fft.fft(psi)) ** 2
+        in_spectrum = float(np.sum(spectrum))
+        # <g|psi|**2 / 2>: the interaction energy of the cubic term, per unit probability.
+        interaction = 0.5 * self.nonlinearity * float(np.sum(density**2))
+        seen = {
+            "norm": in_box * self.dx,
+            "position": float(np.sum(density * x)) / in_box,
+            "position_squared": float(np.sum(density * x**2)) / in_box,
+            "momentum": self.hbar * float(np.sum(spectrum * k)) / in_spectrum,
+            "energy": float(np.sum(spectrum * self.kinetic)) / in_spectrum
+            + (float(np.sum(density * self.potential)) + interaction) / in_box,
+            "reflection": None,
+            "transmission": None,
+        }
+        if bounds is not None:
+            left_end, right_start = bounds
+            seen["reflection"] = float(np.sum(density[:left_end])) * self.dx + self.absorbed_left
+            seen["transmission"] = float(np.sum(density[right_start:])) * self.dx + self.absorbed_right
+        return seen
+
+
+class _Particle:
+    """A classical particle in the piecewise-linear interpolant of the grid potential (periodic)."""
+
+    def __init__(self, system: System, potential: np.ndarray, position: float, momentum: float) -> None:
+        grid, model = system.grid, system.model
+        self.potential = np.asarray(potential, dtype=float)
+        self.start, self.dx, self.points = grid.start, grid.dx, grid.points
+        self.left_end, self.right_start = system.layer_bounds()
+        self.position, self.momentum, self.absorbed = position, momentum, False
+        if model.kind == "continuum":
+            mass = model.mass
+            self.velocity = lambda p: p / mass
+            self.kinetic_energy = lambda p: p * p / (2.0 * mass)
+            self.top_speed = lambda energy, floor: math.sqrt(2.0 * max(energy - floor, 0.0) / mass)
+        else:
+            hopping, a, hbar = model.hopping, grid.dx, model.hbar
+            self.velocity = lambda p: 2.0 * hopping * a / hbar * math.sin(p * a / hbar)
+            self.kinetic_energy = lambda p: -2.0 * hopping * math.cos(p * a / hbar)
+            self.top_speed = lambda energy, floor: 2.0 * hopping * a / hbar
+
+    def cell(self, position: float) -> tuple[int, float]:
+        u = (position - self.start) / self.dx
+        floor = math.floor(u)
+        return int(floor) % self.points, u - floor
+
+    def value(self, position: float) -> float:
+        j, t = self.cell(position)
+        return self.potential[j] * (1.0 - t) + self.potential[(j + 1) % self.points] * t
+
+    def force(self, position: float) -> float:
+        j, _ = self.cell(position)
+        return -(self.potential[(j + 1) % self.points] - self.potential[j]) / self.dx
+
+    def substeps(self, step: float) -> int:
+        """Sub-steps per step, so that even at its top speed the particle crosses <= 1/4 cell each."""
+        energy = self.kinetic_energy(self.momentum) + self.value(self.position)
+        speed = max(self.top_speed(energy, float(np.min(self.potential))), abs(self.velocity(self.momentum)))
+        return min(max(math.ceil(speed * step / (0.25 * self.dx)), 1), 1 << 20)
+
+    def advance(self, dt: float, count: int) -> None:
+        """``count`` leapfrog sub-steps of ``dt``: kick, drift, kick."""
+        length = self.points * self.dx
+        for _ in range(count):
+            if self.absorbed:
+                return
+            self.momentum += 0.5 * dt * self.force(self.position)
+            moved = self.position + dt * self.velocity(self.momentum)
+            self.position = self.start + (moved - self.start) % length
+            self.momentum += 0.5 * dt * self.force(self.position)
+            j, _ = self.cell(self.position)
+            self.absorbed = j < self.left_end or j >= self.right_start
+
+
+def propagate(
+    system: System,
+    packet,
+    duration: float,
+    step: float,
+    order: int = 2,
+    snapshots=(),
+    detector=None,
+    splitting: str | None = None,
+    seed: int = 0,
+    index: int = 0,
+    classical: bool = True,
+) -> Run:
+    """Propagate ``packet`` in ``system`` like :func:`mottle.propagate`, in plain numpy.
+
+    Same arguments, validation and :class:`mottle.Run` fields as the core's
+    (double precision only); see the module docstring for the conventions.
+    """
+    check_system(system)
+    seed = _checks.integer("seed", seed, minimum=0)
+    index = _checks.integer("index", index, minimum=0)
+    if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
+        packet.validate(system.grid)
+        packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
+    check_packet(system, packet)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    splitting = resolve_splitting(order, splitting)
+    steps = steps_for(duration, step)
+    pauses = pauses_for(snapshots, step, steps)
+    check_snapshot_memory(system.grid, len(pauses))
+    bounds = detector_bounds(system, detector)
+
+    from .realize import realize
+
+    potential = realize(system, seed, index)
+    warn_if_coarse(system, packet, step, potential)
+    grid = system.grid
+    x = grid.start + np.arange(grid.points) * grid.dx
+    k = np.asarray(grid.k)
+    propagator = _Propagator(system, potential, step, splitting)
+    psi = packet.values(grid).astype(np.complex128)
+    particle = None
+    if classical:
+        particle = _Particle(system, potential, *initial_phase_space(system, packet))
+        substeps = particle.substeps(step)
+
+    kept, seen, trajectory = [], [], []
+    done = 0
+    for pause in pauses:
+        psi = propagator.advance(psi, pause - done)
+        if particle is not None:
+            particle.advance(step / substeps, (pause - done) * substeps)
+            nan = particle.absorbed
+            trajectory.append(
+                (math.nan if nan else particle.position, math.nan if nan else particle.momentum)
+            )
+        done = pause
+        kept.append(psi.copy())
+        seen.append(propagator.observe(psi, x, k, bounds))
+    psi = propagator.advance(psi, steps - done)
+    last = propagator.observe(psi, x, k, bounds)
+
+    def column(name: str) -> np.ndarray:
+        return np.array([observation[name] for observation in seen], dtype=float)
+
+    classical_path = np.array(trajectory, dtype=float).reshape(len(trajectory), 2)
+    return Run(
+        times=np.asarray(pauses, dtype=float) * step,
+        psi=psi,
+        snapshots=np.array(kept, dtype=np.complex128).reshape(len(kept), grid.points),
+        norm=last["norm"],
+        absorbed_left=propagator.absorbed_left,
+        absorbed_right=propagator.absorbed_right,
+        reflection=last["reflection"],
+        transmission=last["transmission"],
+        position=column("position"),
+        position_squared=column("position_squared"),
+        momentum=column("momentum"),
+        energy=column("energy"),
+        norms=column("norm"),
+        classical_position=classical_path[:, 0] if classical else None,
+        classical_momentum=classical_path[:, 1] if classical else None,
+        x=grid.x,
+        dx=grid.dx,
+    )
+
+
+def hamiltonian_matrix(system: System, seed: int = 0, index: int = 0) -> np.ndarray:
+    """The discretized Hamiltonian ``H = F^-1 diag(T(k)) F + diag(V) - i diag(W)`` as a dense matrix.
+
+    ``F`` is the discrete Fourier transform, so ``H @ psi`` equals
+    ``ifft(T * fft(psi)) + (V - i W) psi``: the generator the split-step scheme
+    approximates, ``psi(t) = exp(-i H t / hbar) psi(0)``. Dense, so for small
+    grids only (at most 4096 points); linear systems only.
+    """
+    check_system(system)
+    if system.nonlinearity != 0.0:
+        raise InvalidParameterError(
+            f"a system with nonlinearity {system.nonlinearity} has no fixed Hamiltonian matrix: "
+            "use nonlinearity=0"
+        )
+    points = system.grid.points
+    if points > 4096:
+        raise InvalidParameterError(f"points={points} is too many for a dense Hamiltonian: use at most 4096")
+    from .realize import realize
+
+    identity = np.eye(points)
+    kinetic = np.fft.ifft(system.kinetic_table()[:, None] * np.fft.fft(identity, axis=0), axis=0)
+    return kinetic + np.diag(realize(system, seed, index) - 1j * system.absorption())
