@@ -55,6 +55,9 @@ def integer(name: str, value: object, minimum: int) -> int:
 
 def real_array(name: str, values: object, shape: tuple[int, ...], dtype=np.float64) -> np.ndarray:
     """A finite array of the given shape, copied so later writes by the caller do not reach us."""
+    if not np.issubdtype(np.dtype(dtype), np.complexfloating) and np.iscomplexobj(values):
+        # numpy would drop the imaginary parts with only a ComplexWarning.
+        raise InvalidTypeError(f"{name} must be real, got complex values of type {np.asarray(values).dtype}")
     try:
         array = np.array(values, dtype=dtype, copy=True)
     except (TypeError, ValueError) as error:

@@ -63,10 +63,11 @@ class GaussianPacket:
                 f"use more points (at least {math.ceil(reach * grid.length / math.pi)}) or a smaller |k0|"
             )
         edge = (0.5 * grid.length / self.width) ** 2 / 4.0
+        # 18 is (17/2)**2 / 4 rounded down: a box of 17 widths passes.
         if edge < 18.0:
             warnings.warn(
                 f"the packet (width {self.width}) still has amplitude {math.exp(-edge):.1e} half a box "
-                f"away; a box longer than {12 * self.width:g} keeps it whole",
+                f"away; a box longer than {17 * self.width:g} keeps it whole",
                 UnderResolvedWarning,
                 stacklevel=3,
             )

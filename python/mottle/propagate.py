@@ -79,7 +79,14 @@ def steps_for(duration: float, step: float, name: str = "duration") -> int:
 
 def pauses_for(snapshots, step: float, steps: int) -> list[int]:
     """Step counts of the snapshot times (rounded to the nearest step), increasing."""
-    times = np.atleast_1d(np.asarray(snapshots, dtype=float)) if len(snapshots) else np.zeros(0)
+    if isinstance(snapshots, (str, bytes)) or snapshots is None:
+        raise InvalidTypeError(f"snapshots must be a sequence of times, got {snapshots!r}")
+    try:
+        times = np.atleast_1d(np.asarray(snapshots, dtype=float))
+    except (TypeError, ValueError):
+        raise InvalidTypeError(f"snapshots must be a sequence of times, got {snapshots!r}") from None
+    if times.ndim != 1:
+        raise InvalidParameterError(f"snapshots must be one-dimensional, got shape {times.shape}")
     pauses = []
     for time in times:
         if not math.isfinite(time) or time <= 0.0 or time > steps * step * (1 + 1e-12):
@@ -92,6 +99,19 @@ def pauses_for(snapshots, step: float, steps: int) -> list[int]:
             f"snapshot times must increase and be at least one step ({step}) apart, got {list(times)}"
         )
     return pauses
+
+
+def check_snapshot_memory(grid, count: int) -> None:
+    """Refuse, before the run, snapshots that could not be kept in memory (two copies at the hand-over)."""
+    from .grid import _memory_bytes
+
+    need = 2 * 16 * count * grid.points
+    have = _memory_bytes()
+    if need > have:
+        raise InvalidParameterError(
+            f"{count} snapshots of {grid.points} points need about {need / 2**30:.1f} GiB, more than this "
+            f"machine's {have / 2**30:.1f} GiB; keep at most {have // (32 * grid.points)} snapshots"
+        )
 
 
 def detector_bounds(system: System, detector) -> tuple[int, int] | None:
@@ -135,7 +155,7 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
     band = _band_reach(system, packet, potential)
     kinetic_phase = (model.kinetic(band, grid.dx) - model.kinetic(0.0, grid.dx)) * step / hbar
     if kinetic_phase > math.pi:
-        limit = step * math.pi / kinetic_phase
+        limit = _three_digits(step * math.pi / kinetic_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the kinetic phase per step reaches {kinetic_phase:.3g} rad at "
             f"|k| = {band:.3g}, the largest wavenumber this run populates (keep it below pi: step <= {limit:.3g})",
@@ -145,9 +165,10 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
     span = float(np.max(np.abs(potential))) if potential.size else 0.0
     potential_phase = span * step / hbar
     if potential_phase > math.pi:
+        limit = _three_digits(step * math.pi / potential_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the potential phase per step reaches {potential_phase:.3g} rad "
-            f"where |V| = {span:.3g} (keep it below pi: step <= {step * math.pi / potential_phase:.3g})",
+            f"where |V| = {span:.3g} (keep it below pi: step <= {limit:.3g})",
             UnderResolvedWarning,
             stacklevel=3,
         )
@@ -155,13 +176,22 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
         energy = packet.mean_kinetic(model, grid.dx)
         design = system.absorber.design_energy(model, grid.dx)
         if system.absorber.strength is None and energy < 2.0 * design:
+            wide_enough = _three_digits(system.absorber.width_for(energy, model, grid.dx), math.ceil)
             warnings.warn(
                 f"absorber width {system.absorber.width} reflects more than 1e-3 of a packet of mean energy "
                 f"{energy:.3g}: its design energy is {design:.3g}; use width >= "
-                f"{system.absorber.width_for(energy, model, grid.dx):.3g} to absorb it cleanly",
+                f"{wide_enough:.3g} to absorb it cleanly",
                 UnderResolvedWarning,
                 stacklevel=3,
             )
+
+
+def _three_digits(value: float, direction) -> float:
+    """``value`` to three significant digits, rounded by ``direction`` (math.floor or math.ceil), so
+    that a suggested step or width printed with ``:.3g`` is itself on the safe side of the limit."""
+    scale = 10.0 ** (math.floor(math.log10(value)) - 2)
+    nudge = 1e-12 if direction is math.ceil else -1e-12  # keep rounding noise on the safe side too
+    return direction(value / scale * (1.0 + nudge)) * scale
 
 
 def _band_reach(system: System, packet, potential: np.ndarray) -> float:
@@ -247,6 +277,7 @@ def propagate(
     _checks.choice("precision", precision, PRECISIONS)
     steps = steps_for(duration, step)
     pauses = pauses_for(snapshots, step, steps)
+    check_snapshot_memory(system.grid, len(pauses))
     bounds = detector_bounds(system, detector)
 
     from .realize import realize
