@@ -17,6 +17,7 @@ use crate::observables::{observe, wavenumbers, Detector};
 use crate::packets::PacketSource;
 use crate::propagate::validate_pauses;
 use crate::real::{density, narrow, Real};
+use crate::spectrum::Spectrum;
 use crate::stepper::{Shared, Stepper};
 
 /// Realizations per chunk: part of the reproducibility contract.
@@ -35,6 +36,8 @@ pub struct Spec {
     pub pauses: Vec<usize>,
     pub detector: Option<Detector>,
     pub seed: u64,
+    /// Resolve the transmission in energy at these modes.
+    pub spectrum: Option<Spectrum>,
 }
 
 /// One chunk's per-realization samples and summed profiles.
@@ -59,6 +62,8 @@ pub struct Chunk {
     pub log_density_squared: Vec<f64>,
     /// Momentum density `|phi(k)|^2` (FFT order) with `sum n(k) dk = norm`.
     pub momentum: Vec<f64>,
+    /// `T(k)` per realization and mode, `count x modes`, realization-major.
+    pub spectrum: Vec<f64>,
 }
 
 fn line(shared_points: usize, dx: f64, start: f64) -> Line {
@@ -100,6 +105,27 @@ pub fn run_chunks<T: Real>(
                 "detector {detector:?} does not fit the grid of {} points",
                 setup.points
             ));
+        }
+    }
+    if let Some(spectrum) = &spec.spectrum {
+        let n = setup.points;
+        let consistent = spectrum.modes.len() == spectrum.energies.len()
+            && spectrum.modes.len() == spectrum.velocities.len();
+        let consistent = consistent && spectrum.wavenumbers.len() == spectrum.modes.len();
+        if spectrum.probes.iter().any(|&p| p >= n)
+            || spectrum.modes.iter().any(|&m| m >= n)
+            || !consistent
+        {
+            return invalid(format!(
+                "spectrum probe or modes do not fit the grid of {n} points"
+            ));
+        }
+        if spectrum
+            .velocities
+            .iter()
+            .any(|&v| !(v.is_finite() && v > 0.0))
+        {
+            return invalid("spectrum modes must move right (velocity > 0)");
         }
     }
     let grid = line(setup.points, setup.dx, setup.start);
@@ -144,6 +170,13 @@ fn run_chunk<T: Real>(
     let mut buffer = psi.clone();
     let k = wavenumbers(n, grid.dx);
     let momentum_scale = grid.dx * grid.dx / (2.0 * std::f64::consts::PI);
+    let mut record: Vec<Complex64> = Vec::with_capacity(if spec.spectrum.is_some() {
+        2 * (spec.steps + 1)
+    } else {
+        0
+    });
+    let mut initial_transform =
+        vec![Complex64::new(0.0, 0.0); if spec.spectrum.is_some() { n } else { 0 }];
     for index in first..first + count {
         if cancel.load(Ordering::Relaxed) {
             return Err(CoreError::Interrupted);
@@ -156,9 +189,19 @@ fn run_chunk<T: Real>(
         psi.iter_mut()
             .zip(&initial)
             .for_each(|(z, &w)| *z = narrow(w));
+        if let Some(spectrum) = &spec.spectrum {
+            record.clear();
+            record.extend(spectrum.probes.iter().map(|&point| initial[point]));
+            stepper.transform(&psi, &mut buffer);
+            for (w, z) in initial_transform.iter_mut().zip(&buffer) {
+                *w = Complex64::new(z.re.wide(), z.im.wide());
+            }
+        }
+        let probe = spec.spectrum.as_ref().map(|spectrum| spectrum.probes);
         let mut done = 0;
         for (s, &pause) in spec.pauses.iter().enumerate() {
-            stepper.advance(&mut psi, pause - done, cancel)?;
+            let probed = probe.as_ref().map(|points| (&points[..], &mut record));
+            stepper.advance_probed(&mut psi, pause - done, cancel, probed)?;
             done = pause;
             let observation = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
             chunk.position.push(observation.position);
@@ -187,7 +230,14 @@ fn run_chunk<T: Real>(
                 *m += density(z) * momentum_scale;
             }
         }
-        stepper.advance(&mut psi, spec.steps - done, cancel)?;
+        let probed = probe.as_ref().map(|points| (&points[..], &mut record));
+        stepper.advance_probed(&mut psi, spec.steps - done, cancel, probed)?;
+        if let Some(spectrum) = &spec.spectrum {
+            let setup = &shared.setup;
+            let values =
+                spectrum.transmission(&record, &initial_transform, setup.step, setup.hbar, grid.dx);
+            chunk.spectrum.extend(values);
+        }
         let last = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
         chunk.transmission.push(last.transmission);
         chunk.reflection.push(last.reflection);

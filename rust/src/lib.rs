@@ -6,11 +6,13 @@ pub mod classical;
 pub mod disorder;
 pub mod ensemble;
 pub mod error;
+pub mod kernels;
 pub mod observables;
 pub mod packets;
 pub mod propagate;
 pub mod random;
 pub mod real;
+pub mod spectrum;
 pub mod splitting;
 pub mod stepper;
 

@@ -9,6 +9,8 @@ use rustfft::FftNum;
 pub trait Real: FftNum + Float + Send + Sync {
     fn of(value: f64) -> Self;
     fn wide(self) -> f64;
+    /// `values[j] *= factors[j]`, vectorized where the CPU allows.
+    fn multiply(values: &mut [Complex<Self>], factors: &[Complex<Self>]);
 }
 
 impl Real for f64 {
@@ -20,6 +22,9 @@ impl Real for f64 {
     fn wide(self) -> f64 {
         self
     }
+    fn multiply(values: &mut [Complex<Self>], factors: &[Complex<Self>]) {
+        crate::kernels::multiply_f64(values, factors)
+    }
 }
 
 impl Real for f32 {
@@ -30,6 +35,9 @@ impl Real for f32 {
     #[inline(always)]
     fn wide(self) -> f64 {
         self as f64
+    }
+    fn multiply(values: &mut [Complex<Self>], factors: &[Complex<Self>]) {
+        crate::kernels::multiply_f32(values, factors)
     }
 }
 

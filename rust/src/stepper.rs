@@ -259,9 +259,7 @@ impl<'a, T: Real> Stepper<'a, T> {
         let phase = &self.factors.phase[table];
         let angle = self.factors.nonlinear_angle[table];
         if angle == T::zero() {
-            for (z, &f) in psi.iter_mut().zip(phase) {
-                *z = *z * f;
-            }
+            T::multiply(psi, phase);
         } else {
             // |psi| is constant under the real potential, so the nonlinear
             // phase is exact (inside absorbing layers, |psi| at the start of the
@@ -276,9 +274,7 @@ impl<'a, T: Real> Stepper<'a, T> {
     fn apply_kinetic(&mut self, psi: &mut [Complex<T>], table: usize) {
         let plans = &self.shared.plans;
         plans.forward.process_with_scratch(psi, &mut self.scratch);
-        for (z, &f) in psi.iter_mut().zip(&self.shared.kinetic_factors[table]) {
-            *z = *z * f;
-        }
+        T::multiply(psi, &self.shared.kinetic_factors[table]);
         plans.inverse.process_with_scratch(psi, &mut self.scratch);
     }
 
@@ -290,6 +286,25 @@ impl<'a, T: Real> Stepper<'a, T> {
         steps: usize,
         cancel: &AtomicBool,
     ) -> Result<(), CoreError> {
+        self.advance_probed(psi, steps, cancel, None)
+    }
+
+    /// As `advance`, and push `psi` at each of `points` after every step onto
+    /// `record` (interleaved). The values are taken before the potential factor
+    /// that closes the step, which is exact where the potential vanishes (the
+    /// detector's free side).
+    pub fn advance_probed(
+        &mut self,
+        psi: &mut [Complex<T>],
+        steps: usize,
+        cancel: &AtomicBool,
+        mut probe: Option<(&[usize], &mut Vec<Complex64>)>,
+    ) -> Result<(), CoreError> {
+        if let Some((points, _)) = &probe {
+            if points.iter().any(|&point| point >= psi.len()) {
+                return invalid(format!("probe points {points:?} lie outside the grid"));
+            }
+        }
         if psi.len() != self.shared.setup.points {
             return invalid(format!(
                 "psi has {} values; the grid has {}",
@@ -314,6 +329,12 @@ impl<'a, T: Real> Stepper<'a, T> {
                 };
                 self.apply_potential(psi, potential);
                 self.apply_kinetic(psi, self.shared.schedule.kinetic_stage[stage]);
+            }
+            if let Some((points, record)) = probe.as_mut() {
+                for &point in points.iter() {
+                    let z = psi[point];
+                    record.push(Complex64::new(z.re.wide(), z.im.wide()));
+                }
             }
             pending = merged;
             if step % CANCEL_POLL_STEPS == CANCEL_POLL_STEPS - 1 && cancel.load(Ordering::Relaxed) {

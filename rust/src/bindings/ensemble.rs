@@ -13,6 +13,7 @@ use crate::error::CoreError;
 use crate::observables::Detector;
 use crate::packets::{Draw, PacketSource};
 use crate::real::Real;
+use crate::spectrum::Spectrum;
 use crate::stepper::Shared;
 
 /// One disorder term as the Python specs describe it (`Disorder.config()`).
@@ -167,6 +168,15 @@ fn draw_packet(
     })
 }
 
+type SpectrumConfig = (
+    [usize; 2],
+    [f64; 2],
+    Vec<usize>,
+    Vec<f64>,
+    Vec<f64>,
+    Vec<f64>,
+);
+
 #[derive(FromPyObject)]
 #[pyo3(from_item_all)]
 struct EnsembleConfig {
@@ -178,6 +188,8 @@ struct EnsembleConfig {
     count: usize,
     threads: usize,
     precision: String,
+    /// (probe points, their positions, modes, wavenumbers, energies, velocities)
+    spectrum: Option<SpectrumConfig>,
 }
 
 fn run_in<T: Real>(
@@ -201,6 +213,7 @@ fn chunk_dict<'py>(
     chunk: Chunk,
     snapshots: usize,
     points: usize,
+    modes: usize,
 ) -> PyResult<Bound<'py, PyDict>> {
     let dict = PyDict::new(py);
     dict.set_item("start", chunk.start)?;
@@ -233,6 +246,7 @@ fn chunk_dict<'py>(
             points,
         ),
         ("momentum", chunk.momentum, snapshots, points),
+        ("spectrum", chunk.spectrum, chunk.count, modes),
     ] {
         let array = Array2::from_shape_vec((rows, columns), values)
             .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
@@ -272,6 +286,16 @@ fn ensemble_chunks<'py>(
                 right_start,
             }),
             seed: run.seed,
+            spectrum: run.spectrum.clone().map(
+                |(probes, positions, modes, wavenumbers, energies, velocities)| Spectrum {
+                    probes,
+                    positions,
+                    modes,
+                    wavenumbers,
+                    energies,
+                    velocities,
+                },
+            ),
         };
         if run.threads == 0 {
             return Err(CoreError::InvalidInput("threads must be >= 1".into()));
@@ -280,6 +304,10 @@ fn ensemble_chunks<'py>(
     })();
     let (setup, spec) = prepared.map_err(|error| to_pyerr(py, error))?;
     let snapshots = spec.pauses.len();
+    let modes = spec
+        .spectrum
+        .as_ref()
+        .map_or(0, |spectrum| spectrum.modes.len());
     let chunks = run_detached(py, |cancel| match run.precision.as_str() {
         "double" => run_in::<f64>(setup, &spec, &run, cancel),
         "single" => run_in::<f32>(setup, &spec, &run, cancel),
@@ -289,7 +317,7 @@ fn ensemble_chunks<'py>(
     })?;
     let list = PyList::empty(py);
     for chunk in chunks {
-        list.append(chunk_dict(py, chunk, snapshots, points)?)?;
+        list.append(chunk_dict(py, chunk, snapshots, points, modes)?)?;
     }
     Ok(list)
 }
