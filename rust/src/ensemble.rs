@@ -85,7 +85,7 @@ pub fn run_chunks<T: Real>(
     cancel: &AtomicBool,
 ) -> Result<Vec<Chunk>, CoreError> {
     let setup = &shared.setup;
-    if start % CHUNK != 0 {
+    if !start.is_multiple_of(CHUNK) {
         return invalid(format!(
             "start {start} must be a multiple of the chunk size {CHUNK}"
         ));
