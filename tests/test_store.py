@@ -284,3 +284,16 @@ def test_texts_larger_than_an_hdf5_attribute_are_stored(tmp_path, results):
     store = mo.open_store(tmp_path / "big.h5")
     assert notes in store.study_text
     assert json.dumps(store.points[0].resolved)
+
+
+def test_a_file_system_without_locks_warns_and_still_writes(tmp_path, study, results, monkeypatch):
+    import errno
+    import fcntl
+
+    def unsupported(fd, operation):
+        raise OSError(errno.ENOSYS, "Function not implemented")
+
+    monkeypatch.setattr(fcntl, "flock", unsupported)
+    with pytest.warns(UserWarning, match=r"cannot lock .*r.h5.lock \(Function not implemented\)"):
+        write_store(tmp_path / "r.h5", study, results, indices=[1])
+    assert [p.index for p in mo.open_store(tmp_path / "r.h5").points] == [1]

@@ -44,6 +44,7 @@ import shutil
 import signal
 import socket
 import threading
+import warnings
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -69,6 +70,16 @@ def _h5py():
     return h5py
 
 
+def _h5open(path, mode: str):
+    """h5py.File without HDF5's own file locks: the store has its own lock, never changes a file in
+    place, and HDF5's locks fail on file systems without them (common on cluster storage)."""
+    h5py = _h5py()
+    try:
+        return h5py.File(path, mode, locking=False)
+    except TypeError:  # h5py older than 3.5
+        return h5py.File(path, mode)
+
+
 def _version() -> str:
     from . import __version__
 
@@ -84,7 +95,6 @@ def _now() -> str:
 
 def _open_checked(path: Path):
     """Open an existing store read-only, refusing files that are not complete mottle stores."""
-    h5py = _h5py()
     if not path.exists():
         raise StoreError(f"{path}: no such results store")
     if path.is_dir():
@@ -99,7 +109,7 @@ def _open_checked(path: Path):
             f"{path} is not an HDF5 file, so not a mottle results store (it was not overwritten)"
         )
     try:
-        handle = h5py.File(path, "r")
+        handle = _h5open(path, "r")
     except OSError as error:
         detail = str(error).split("(")[0].strip() or type(error).__name__
         raise StoreError(
@@ -340,10 +350,17 @@ class _Lock:
             fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
             try:
                 fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-            except OSError:
+            except BlockingIOError:
                 holder = os.pread(fd, 64, 0).decode(errors="replace").strip()
                 os.close(fd)
                 raise StoreError(self._busy(holder)) from None
+            except OSError as error:  # a file system without locks (some network mounts)
+                warnings.warn(
+                    f"cannot lock {self.path} ({error.strerror}): make sure no other mottle run writes "
+                    f"{self.path.with_suffix('')} at the same time",
+                    stacklevel=3,
+                )
+                break
             # The holder may have unlinked the file between our open and our lock: retry on a fresh one.
             try:
                 same = os.path.samestat(os.fstat(fd), os.stat(self.path))
@@ -353,7 +370,8 @@ class _Lock:
                 break
             os.close(fd)
         os.ftruncate(fd, 0)
-        os.pwrite(fd, f"{os.getpid()} {socket.gethostname()}\n".encode(), 0)
+        os.lseek(fd, 0, os.SEEK_SET)
+        os.write(fd, f"{os.getpid()} {socket.gethostname()}\n".encode())
         self.fd = fd
 
     def _busy(self, holder: str | None) -> str:
@@ -483,7 +501,6 @@ class StoreWriter:
         handle.create_group("points")
 
     def _rewrite(self, change) -> None:
-        h5py = _h5py()
         temporary = self._temporary()
         with _signals_deferred():
             try:
@@ -492,7 +509,7 @@ class StoreWriter:
                     mode = "r+"
                 else:
                     mode = "w"
-                with h5py.File(temporary, mode) as handle:
+                with _h5open(temporary, mode) as handle:
                     change(handle)
                 with open(temporary, "rb+") as raw:
                     os.fsync(raw.fileno())
