@@ -114,7 +114,6 @@ def classical_crossing(energy):
 def test_classical_particle_is_reflected_below_the_top_and_passes_above(energy, passes):
     # Classical mechanics: a particle with E < V0 turns back at the barrier, one with E > V0
     # crosses and recovers its speed; the quantum packet meanwhile tunnels or is partly reflected.
-    # (The momentum is checked to 10% only: see the xfail test below.)
     run, wavenumber = classical_crossing(energy)
     position, momentum = run.classical_position[-1], run.classical_momentum[-1]
     if passes:
@@ -128,11 +127,6 @@ def test_classical_particle_is_reflected_below_the_top_and_passes_above(energy, 
         assert run.position[-1] < 0.0
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="core limitation: rust/src/classical.rs kicks with the force at the sub-step ends, so "
-    "each jump of the piecewise-constant force costs up to ~V0/4 of energy (here 1.5 -> 1.588)",
-)
 def test_classical_energy_is_conserved_across_a_sharp_barrier():
     # Energy conservation, H = p**2/2m + V(x): past the barrier the particle has its initial momentum.
     run, wavenumber = classical_crossing(1.5)

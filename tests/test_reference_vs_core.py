@@ -144,11 +144,6 @@ def test_core_equals_reference(case):
         assert_close("energy", core.energy, reference.energy)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="core bug: rust/src/observables.rs adds 0.5*g*sum(rho**2)*dx/sum(rho) to the energy, "
-    "an extra factor dx on the interaction energy (should be 0.5*g*sum(rho**2)/sum(rho))",
-)
 @pytest.mark.parametrize(
     "case", [case_nonlinear_with_absorbers, case_lattice_random], ids=["continuum", "lattice"]
 )

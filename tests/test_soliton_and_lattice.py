@@ -63,13 +63,7 @@ def test_without_the_cubic_term_the_same_state_spreads():
     "propagate",
     [
         mo.reference.propagate,
-        pytest.param(
-            mo.propagate,
-            marks=pytest.mark.xfail(
-                strict=True,
-                reason="core bug: rust/src/observables.rs multiplies the interaction energy by an extra dx",
-            ),
-        ),
+        mo.propagate,
     ],
     ids=["reference", "core"],
 )

@@ -26,10 +26,11 @@ conventions exactly, so that the two agree to rounding (the tests hold them to
   by it; ``<p>`` and ``<T>`` come from ``|fft(psi)|**2``.
 
 The classical fields of the returned :class:`mottle.Run` come from the same
-Stormer-Verlet leapfrog as the core's (a loop in plain Python): Hamilton's
-equations in the piecewise-linear interpolant of the grid potential, with
-sub-steps that cross at most a quarter of a cell; a particle that enters an
-absorbing layer stops there and reads NaN.
+integrator as the core's (a loop in plain Python): Hamilton's equations in
+the piecewise-linear interpolant of the grid potential, solved exactly cell
+by cell in the continuum and by the Stormer-Verlet leapfrog on the lattice
+(sub-steps that cross at most a quarter of a cell); a particle that enters
+an absorbing layer stops there and reads NaN.
 """
 
 from __future__ import annotations
@@ -193,6 +194,7 @@ class _Particle:
         self.start, self.dx, self.points = grid.start, grid.dx, grid.points
         self.left_end, self.right_start = system.layer_bounds()
         self.position, self.momentum, self.absorbed = position, momentum, False
+        self.mass = model.mass if model.kind == "continuum" else None
         if model.kind == "continuum":
             mass = model.mass
             self.velocity = lambda p: p / mass
@@ -223,6 +225,51 @@ class _Particle:
         speed = max(self.top_speed(energy, float(np.min(self.potential))), abs(self.velocity(self.momentum)))
         return min(max(math.ceil(speed * step / (0.25 * self.dx)), 1), 1 << 20)
 
+    def evolve(self, duration: float, substeps: int) -> None:
+        """Exact cell-by-cell motion in the continuum; ``substeps`` leapfrog steps on the lattice."""
+        if self.mass is None:
+            self.advance(duration / substeps, substeps)
+        else:
+            self.exact(duration)
+
+    def cell_force(self, cell: int) -> float:
+        j = cell % self.points
+        return -(self.potential[(j + 1) % self.points] - self.potential[j]) / self.dx
+
+    def exact(self, duration: float) -> None:
+        """The force is constant in a cell: follow the parabola to the next edge, cell after cell."""
+        u = (self.position - self.start) / self.dx
+        cell = math.floor(u)
+        offset = (u - cell) * self.dx
+        momentum, remaining, mass = self.momentum, duration, self.mass
+        while remaining > 0.0 and not self.absorbed:
+            velocity = momentum / mass
+            if offset <= 0.0 and (velocity < 0.0 or (velocity == 0.0 and self.cell_force(cell) < 0.0)):
+                cell, offset = cell - 1, self.dx
+            force = self.cell_force(cell)
+            acceleration = force / mass
+            exits = [
+                (t, edge)
+                for edge in (0.0, self.dx)
+                if (t := _first_arrival(offset, velocity, acceleration, edge)) is not None
+            ]
+            time, edge = min(exits) if exits else (math.inf, 0.0)
+            if time >= remaining:
+                offset = offset + velocity * remaining + 0.5 * acceleration * remaining * remaining
+                offset = min(max(offset, 0.0), self.dx)
+                momentum += force * remaining
+                remaining = 0.0
+            else:
+                momentum += force * time
+                remaining -= time
+                cell += 1 if edge > 0.0 else 0
+                offset = 0.0
+            wrapped = cell % self.points
+            self.absorbed = wrapped < self.left_end or wrapped >= self.right_start
+        length = self.points * self.dx
+        self.position = self.start + (self.start + cell * self.dx + offset - self.start) % length
+        self.momentum = momentum
+
     def advance(self, dt: float, count: int) -> None:
         """``count`` leapfrog sub-steps of ``dt``: kick, drift, kick."""
         length = self.points * self.dx
@@ -235,6 +282,23 @@ class _Particle:
             self.momentum += 0.5 * dt * self.force(self.position)
             j, _ = self.cell(self.position)
             self.absorbed = j < self.left_end or j >= self.right_start
+
+
+def _first_arrival(offset: float, velocity: float, acceleration: float, edge: float) -> float | None:
+    """The first t > 0 at which offset + v t + a t**2/2 reaches edge, if ever."""
+    distance = edge - offset
+    if distance == 0.0:
+        back = -2.0 * velocity / acceleration if acceleration != 0.0 else 0.0
+        return back if back > 0.0 else None
+    if acceleration == 0.0:
+        time = distance / velocity if velocity != 0.0 else -1.0
+        return time if time > 0.0 else None
+    discriminant = velocity * velocity + 2.0 * acceleration * distance
+    if discriminant < 0.0:
+        return None
+    q = -0.5 * (velocity + math.copysign(1.0, velocity if velocity != 0.0 else 1.0) * math.sqrt(discriminant))
+    roots = [t for t in (q / (0.5 * acceleration), -distance / q if q != 0.0 else -1.0) if math.isfinite(t) and t > 0.0]
+    return min(roots) if roots else None
 
 
 def propagate(
@@ -289,7 +353,7 @@ def propagate(
     for pause in pauses:
         psi = propagator.advance(psi, pause - done)
         if particle is not None:
-            particle.advance(step / substeps, (pause - done) * substeps)
+            particle.evolve((pause - done) * step, (pause - done) * substeps)
             nan = particle.absorbed
             trajectory.append(
                 (math.nan if nan else particle.position, math.nan if nan else particle.momentum)

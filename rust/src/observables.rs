@@ -88,8 +88,7 @@ pub fn observe<T: Real>(
         }
         None => (f64::NAN, f64::NAN),
     };
-    let energy =
-        kinetic / spectral + (potential + 0.5 * setup.nonlinearity * quartic * setup.dx) / norm;
+    let energy = kinetic / spectral + (potential + 0.5 * setup.nonlinearity * quartic) / norm;
     Observation {
         norm: norm * setup.dx,
         absorbed: stepper.absorbed,

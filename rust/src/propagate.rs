@@ -120,11 +120,8 @@ pub fn propagate<T: Real>(
     for &pause in request.pauses.iter().chain(std::iter::once(&request.steps)) {
         stepper.advance(&mut psi, pause - done, cancel)?;
         if let Some(particle) = particle.as_mut() {
-            landscape.advance(
-                particle,
-                setup.step / substeps as f64,
-                (pause - done) * substeps,
-            );
+            let span = pause - done;
+            landscape.evolve(particle, span as f64 * setup.step, span * substeps);
         }
         done = pause;
         let observation = observe(&mut stepper, &psi, &mut buffer, &k, request.detector);
