@@ -219,11 +219,12 @@ def suggested_step(message):
             mo.GaussianPacket(-20.0, 1.0, 3.0),
             0.05,
         ),
-        # A step just above the limit, whose three-digit rounding would land on the wrong side.
+        # A step just above the limit (the band edge k0 + 5 sigma_k puts the kinetic phase at
+        # pi (1 + 1e-6)), whose three-digit rounding would land on the wrong side.
         (
-            mo.System(mo.Grid(128, 20.0), potential=mo.Harmonic(1.0) + mo.Tabulated(np.zeros(128))),
-            mo.GaussianPacket(-2.0, 1.0, 0.5**0.5),
-            2.0 / 64,
+            mo.System(mo.Grid(512, 100.0)),
+            mo.GaussianPacket(0.0, 5.0, 2.5 / ((2.0 * np.pi / 0.03 * (1 + 1e-6)) ** 0.5 - 5.0)),
+            0.03,
         ),
     ],
 )

@@ -150,9 +150,16 @@ def check_packet(system: System, packet) -> None:
 
 
 def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -> None:
-    """Warn when the phase a step puts on the populated wavenumbers, or the potential, exceeds pi."""
+    """Warn when the phase a step puts on the populated wavenumbers, or the potential, exceeds pi.
+
+    Only what the packet can reach counts: its band widened by the kinetic energy
+    it can gain falling to the potential's floor, and the potential clipped at
+    four times the packet's energy scale above that floor (a tall barrier is felt
+    through its evanescent tail only, a harmonic well's walls far beyond the
+    turning points not at all).
+    """
     grid, model, hbar = system.grid, system.model, system.hbar
-    band = _band_reach(system, packet, potential)
+    band, floor, ceiling = _reach(system, packet, potential)
     kinetic_phase = (model.kinetic(band, grid.dx) - model.kinetic(0.0, grid.dx)) * step / hbar
     if kinetic_phase > math.pi:
         limit = _three_digits(step * math.pi / kinetic_phase, math.floor)
@@ -162,13 +169,14 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
             UnderResolvedWarning,
             stacklevel=3,
         )
-    span = float(np.max(np.abs(potential))) if potential.size else 0.0
+    span = float(np.max(np.minimum(potential, ceiling)) - floor) if potential.size else 0.0
     potential_phase = span * step / hbar
     if potential_phase > math.pi:
         limit = _three_digits(step * math.pi / potential_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the potential phase per step reaches {potential_phase:.3g} rad "
-            f"where |V| = {span:.3g} (keep it below pi: step <= {limit:.3g})",
+            f"across the potential's range {span:.3g} that the packet feels (keep it below pi: "
+            f"step <= {limit:.3g})",
             UnderResolvedWarning,
             stacklevel=3,
         )
@@ -194,21 +202,32 @@ def _three_digits(value: float, direction) -> float:
     return direction(value / scale * (1.0 + nudge)) * scale
 
 
-def _band_reach(system: System, packet, potential: np.ndarray) -> float:
-    """The largest |k| a run populates: the packet's band widened by what the potential can add."""
+def _reach(system: System, packet, potential: np.ndarray) -> tuple[float, float, float]:
+    """(largest |k| the run populates, potential floor, the ceiling above which V is not felt)."""
     grid, model = system.grid, system.model
+    psi = packet.values(grid)
+    weight = np.abs(np.fft.fft(psi)) ** 2
+    k = np.abs(np.asarray(grid.k))
     if isinstance(packet, GaussianPacket):
-        reach = abs(packet.wavenumber) + 5.0 * packet.wavenumber_spread
+        band = abs(packet.wavenumber) + 5.0 * packet.wavenumber_spread
     else:
-        weight = np.abs(np.fft.fft(packet.table)) ** 2
-        k = np.abs(grid.k)
         order = np.argsort(k)
         cumulative = np.cumsum(weight[order]) / np.sum(weight)
-        reach = float(k[order][min(np.searchsorted(cumulative, 1.0 - 1e-12), k.size - 1)])
-    depth = float(np.max(potential) - np.min(potential)) if potential.size else 0.0
-    mass = model.effective_mass(grid.dx)
-    reach += math.sqrt(2.0 * mass * depth) / model.hbar
-    return min(reach, grid.k_max)
+        band = float(k[order][min(np.searchsorted(cumulative, 1.0 - 1e-12), k.size - 1)])
+    band = min(band, grid.k_max)
+    if not potential.size:
+        return band, 0.0, 0.0
+    density = np.abs(psi) ** 2
+    support = density > 1e-10 * density.max()
+    kinetic = lambda wavenumber: float(model.kinetic(wavenumber, grid.dx) - model.kinetic(0.0, grid.dx))  # noqa: E731
+    top = kinetic(band) + float(np.max(potential[support]))  # the most energy the packet carries
+    floor = float(np.min(potential))
+    gain = max(top - floor, 0.0)
+    # The fastest the packet can move: its band, or what falling to the floor gives it.
+    energies = np.asarray(model.kinetic(k, grid.dx)) - model.kinetic(0.0, grid.dx)
+    reachable = k[energies <= gain]
+    band = max(band, float(reachable.max()) if reachable.size else 0.0)
+    return min(band, grid.k_max), floor, floor + 4.0 * gain
 
 
 def initial_phase_space(system: System, packet) -> tuple[float, float]:
