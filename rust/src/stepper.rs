@@ -99,9 +99,15 @@ impl<T: Real> Plans<T> {
     }
 
     pub fn scratch_len(&self) -> usize {
-        self.forward
-            .get_inplace_scratch_len()
-            .max(self.inverse.get_inplace_scratch_len())
+        [
+            self.forward.get_inplace_scratch_len(),
+            self.inverse.get_inplace_scratch_len(),
+            self.forward.get_outofplace_scratch_len(),
+            self.inverse.get_outofplace_scratch_len(),
+        ]
+        .into_iter()
+        .max()
+        .unwrap_or(0)
     }
 }
 
@@ -162,6 +168,8 @@ pub struct Stepper<'a, T: Real> {
     shared: &'a Shared<T>,
     factors: PotentialFactors<T>,
     scratch: Vec<Complex<T>>,
+    /// The wavefunction in k space during a kinetic factor.
+    spectrum: Vec<Complex<T>>,
     pub absorbed: Absorbed,
     /// Real potential of the current realization (for the energy).
     potential: Vec<f64>,
@@ -180,6 +188,7 @@ impl<'a, T: Real> Stepper<'a, T> {
                 nonlinear_angle: vec![T::zero(); tables],
             },
             scratch: vec![Complex::new(T::zero(), T::zero()); shared.plans.scratch_len()],
+            spectrum: vec![Complex::new(T::zero(), T::zero()); n],
             absorbed: Absorbed::default(),
             potential: vec![0.0; n],
         }
@@ -272,10 +281,17 @@ impl<'a, T: Real> Stepper<'a, T> {
     }
 
     fn apply_kinetic(&mut self, psi: &mut [Complex<T>], table: usize) {
+        // Out of place there and back: rustfft's in-place transforms of these
+        // sizes go through a copy, which this saves.
         let plans = &self.shared.plans;
-        plans.forward.process_with_scratch(psi, &mut self.scratch);
-        T::multiply(psi, &self.shared.kinetic_factors[table]);
-        plans.inverse.process_with_scratch(psi, &mut self.scratch);
+        let spectrum = &mut self.spectrum[..];
+        plans
+            .forward
+            .process_outofplace_with_scratch(psi, spectrum, &mut self.scratch);
+        T::multiply(spectrum, &self.shared.kinetic_factors[table]);
+        plans
+            .inverse
+            .process_outofplace_with_scratch(spectrum, psi, &mut self.scratch);
     }
 
     /// Advance `steps` whole steps from a paused state (every factor applied)
