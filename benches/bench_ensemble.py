@@ -11,20 +11,17 @@ import subprocess
 import sys
 import textwrap
 
+import mottle as mo
 import numpy as np
 import pytest
 from conftest import TIMINGS, figure, record
-
-import mottle as mo
 
 POINTS = 4096
 REALIZATIONS = 64
 STEPS = 200
 STEP = 0.02
 GRID = mo.Grid(POINTS, 800.0)
-SYSTEM = mo.System(
-    GRID, disorder=mo.GaussianDisorder(0.02, 1.0, 0.0, 200.0), absorber=mo.Absorber(60.0)
-)
+SYSTEM = mo.System(GRID, disorder=mo.GaussianDisorder(0.02, 1.0, 0.0, 200.0), absorber=mo.Absorber(60.0))
 PACKET = mo.GaussianPacket(-100.0, 1.5, 10.0)
 WORK = REALIZATIONS * STEPS
 
@@ -60,8 +57,12 @@ def test_pyfftw_batched(benchmark):
     pyfftw = pytest.importorskip("pyfftw")
     psi, potential_factor, kinetic_factor = batched_tables()
     buffer = pyfftw.empty_aligned(psi.shape, dtype="complex128")
-    forward = pyfftw.FFTW(buffer, buffer, axes=(-1,), direction="FFTW_FORWARD", flags=("FFTW_MEASURE",), threads=2)
-    backward = pyfftw.FFTW(buffer, buffer, axes=(-1,), direction="FFTW_BACKWARD", flags=("FFTW_MEASURE",), threads=2)
+    forward = pyfftw.FFTW(
+        buffer, buffer, axes=(-1,), direction="FFTW_FORWARD", flags=("FFTW_MEASURE",), threads=2
+    )
+    backward = pyfftw.FFTW(
+        buffer, buffer, axes=(-1,), direction="FFTW_BACKWARD", flags=("FFTW_MEASURE",), threads=2
+    )
 
     def loop():
         buffer[:] = psi
@@ -102,16 +103,24 @@ PEAK_SCRIPT = textwrap.dedent(
 
 
 def peak_bytes(realizations: int) -> int:
-    out = subprocess.run([sys.executable, "-c", PEAK_SCRIPT, str(realizations)], capture_output=True, text=True)
+    out = subprocess.run(
+        [sys.executable, "-c", PEAK_SCRIPT, str(realizations)], capture_output=True, text=True
+    )
     out.check_returncode()
     return json.loads(out.stdout)
 
 
 def test_figures():
     core = TIMINGS["ensemble: mottle core, 2 thread(s)"]
-    figure("core / pyFFTW batched (per realization-step)", core / TIMINGS["ensemble: pyFFTW batched, 2 threads"], "<= 0.8")
+    figure(
+        "core / pyFFTW batched (per realization-step)",
+        core / TIMINGS["ensemble: pyFFTW batched, 2 threads"],
+        "<= 0.8",
+    )
     figure("numpy batched / core", TIMINGS["ensemble: numpy batched reference"] / core, ">= 8")
     figure("1 thread / 2 threads", TIMINGS["ensemble: mottle core, 1 thread(s)"] / core, ">= 1.8")
-    figure("double / single (2 threads)", core / TIMINGS["ensemble: mottle core, 2 threads, single"], ">= 1.6")
+    figure(
+        "double / single (2 threads)", core / TIMINGS["ensemble: mottle core, 2 threads, single"], ">= 1.6"
+    )
     extra = (peak_bytes(2000) - peak_bytes(50)) / 2**20
     figure("peak memory, 2000 minus 50 realizations (MiB)", extra, "<= 40")

@@ -9,11 +9,10 @@ error at one step (errors scale as step**4) and the measured time per step.
 
 from __future__ import annotations
 
+import mottle as mo
 import numpy as np
 import pytest
 from conftest import TIMINGS, figure, record
-
-import mottle as mo
 
 GRID = mo.Grid(1024, 20.0)
 BUMP = mo.Tabulated(0.8 * np.exp(-((GRID.x - 1.0) ** 2)))

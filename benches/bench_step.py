@@ -3,17 +3,18 @@ reference, and two numpy FFTs of the same size (the floor a split step cannot be
 
 from __future__ import annotations
 
+import mottle as mo
 import numpy as np
 import pytest
 from conftest import TIMINGS, figure, record
-
-import mottle as mo
 
 POINTS = 4096
 STEPS = 1000
 STEP = 0.02
 SYSTEM = mo.System(
-    mo.Grid(POINTS, 800.0), potential=mo.Barrier(0.5, 0.0, 2.0) + mo.Harmonic(1e-4), absorber=mo.Absorber(60.0)
+    mo.Grid(POINTS, 800.0),
+    potential=mo.Barrier(0.5, 0.0, 2.0) + mo.Harmonic(1e-4),
+    absorber=mo.Absorber(60.0),
 )
 PACKET = mo.GaussianPacket(-100.0, 1.5, 10.0)
 

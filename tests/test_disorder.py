@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
+import mottle as mo
 import numpy as np
 import pytest
 from scipy import integrate, stats
-
-import mottle as mo
 
 GRID = mo.Grid(points=8192, length=2048.0)  # dx = 0.25
 REALIZATIONS = 24
@@ -110,9 +109,7 @@ def test_speckle_intensity_is_exponential(sign):
 def test_power_spectrum_is_the_fourier_transform_of_the_correlation(model, q):
     # C~(q) = integral C(x) cos(qx) dx for an even C (numerical quadrature, scipy.integrate.quad).
     limit = 400.0 * model.correlation_length
-    value, _ = integrate.quad(
-        lambda x: 2.0 * model.correlation(x) * np.cos(q * x), 0.0, limit, limit=4000
-    )
+    value, _ = integrate.quad(lambda x: 2.0 * model.correlation(x) * np.cos(q * x), 0.0, limit, limit=4000)
     assert float(model.power_spectrum(q)) == pytest.approx(value, abs=2e-3 * model.variance())
 
 

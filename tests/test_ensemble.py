@@ -9,10 +9,9 @@ import sys
 import textwrap
 import time
 
+import mottle as mo
 import numpy as np
 import pytest
-
-import mottle as mo
 
 GRID = mo.Grid(points=512, length=200.0)
 DISORDER = mo.GaussianDisorder(rms=0.15, correlation_length=1.0, start=0.0, stop=30.0)
@@ -36,7 +35,9 @@ def assert_bitwise_equal(first: mo.EnsembleResult, second: mo.EnsembleResult):
 def test_each_realization_equals_a_single_run():
     result = run_ensemble()
     for index in (0, 15, 16, 39):
-        run = mo.propagate(SYSTEM, PACKET, **RUN, seed=4, index=index, detector=(0.0, 30.0), snapshots=(25.0, 50.0))
+        run = mo.propagate(
+            SYSTEM, PACKET, **RUN, seed=4, index=index, detector=(0.0, 30.0), snapshots=(25.0, 50.0)
+        )
         for name in ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right"):
             assert result.samples[name][index] == pytest.approx(getattr(run, name), abs=1e-12), name
         np.testing.assert_allclose(result.samples["position"][index], run.position, atol=1e-10)
@@ -137,13 +138,17 @@ def test_single_precision_agrees_with_double_to_the_documented_accuracy():
     double = run_ensemble(realizations=16)
     single = run_ensemble(realizations=16, precision="single")
     steps = round(RUN["duration"] / RUN["step"])
-    np.testing.assert_allclose(single.samples["transmission"], double.samples["transmission"], rtol=2e-7 * steps)
+    np.testing.assert_allclose(
+        single.samples["transmission"], double.samples["transmission"], rtol=2e-7 * steps
+    )
     np.testing.assert_allclose(single.samples["norm"], double.samples["norm"], rtol=2e-7 * steps)
     assert not np.array_equal(single.samples["transmission"], double.samples["transmission"])
 
 
 def test_random_packets_and_packet_lists():
-    random_packet = mo.RandomPacket(center=mo.Uniform(-40.0, -30.0), wavenumber=mo.Normal(1.2, 0.05), width=6.0)
+    random_packet = mo.RandomPacket(
+        center=mo.Uniform(-40.0, -30.0), wavenumber=mo.Normal(1.2, 0.05), width=6.0
+    )
     result = mo.ensemble(SYSTEM, random_packet, **RUN, realizations=8, seed=2)
     for index in (0, 5):
         run = mo.propagate(SYSTEM, random_packet, **RUN, seed=2, index=index, detector=(0.0, 30.0))
@@ -153,7 +158,9 @@ def test_random_packets_and_packet_lists():
     assert centers.min() >= -40.0 and centers.max() < -30.0
     assert len(set(centers)) == 200
     listed = mo.PacketList([PACKET, mo.GaussianPacket(-35.0, 1.5, 6.0)])
-    result = mo.ensemble(mo.System(GRID, absorber=mo.Absorber(30.0)), listed, **RUN, realizations=4, detector=(0, 30))
+    result = mo.ensemble(
+        mo.System(GRID, absorber=mo.Absorber(30.0)), listed, **RUN, realizations=4, detector=(0, 30)
+    )
     t = result.samples["transmission"]
     assert t[0] == t[2] and t[1] == t[3] and t[0] != t[1]
 
@@ -183,7 +190,7 @@ def test_bad_ensemble_arguments(options, message):
 
 
 def test_partial_start_must_be_a_chunk_boundary():
-    with pytest.raises(ValueError, match="multiple of mottle.CHUNK"):
+    with pytest.raises(ValueError, match=r"multiple of mottle\.CHUNK"):
         mo.ensemble_partial(SYSTEM, PACKET, **RUN, start=3, count=16)
 
 
@@ -197,7 +204,9 @@ def test_ctrl_c_stops_a_long_ensemble_quickly():
         mo.ensemble(system, mo.GaussianPacket(-100.0, 1.0, 10.0), 2000.0, 0.01, 4096, threads=2)
         """
     )
-    process = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    process = subprocess.Popen(
+        [sys.executable, "-c", script], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+    )
     assert process.stdout.readline().strip() == "ready"
     time.sleep(1.0)
     sent = time.monotonic()

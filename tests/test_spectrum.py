@@ -4,10 +4,9 @@ from __future__ import annotations
 
 import warnings
 
+import mottle as mo
 import numpy as np
 import pytest
-
-import mottle as mo
 
 
 def barrier_transmission(energy, height=1.0, width=1.0):
@@ -17,9 +16,13 @@ def barrier_transmission(energy, height=1.0, width=1.0):
     below = energy < height
     result = np.empty_like(energy)
     kappa = np.sqrt(2.0 * (height - energy[below]))
-    result[below] = 1.0 / (1.0 + height**2 * np.sinh(kappa * width) ** 2 / (4 * energy[below] * (height - energy[below])))
+    result[below] = 1.0 / (
+        1.0 + height**2 * np.sinh(kappa * width) ** 2 / (4 * energy[below] * (height - energy[below]))
+    )
     q = np.sqrt(2.0 * (energy[~below] - height))
-    result[~below] = 1.0 / (1.0 + height**2 * np.sin(q * width) ** 2 / (4 * energy[~below] * (energy[~below] - height)))
+    result[~below] = 1.0 / (
+        1.0 + height**2 * np.sin(q * width) ** 2 / (4 * energy[~below] * (energy[~below] - height))
+    )
     return result
 
 
@@ -38,7 +41,9 @@ def test_a_broadband_packet_gives_the_barrier_transmission_across_its_band():
     packet = mo.GaussianPacket(center=-75.0, wavenumber=1.3, width=4.0)
     with warnings.catch_warnings():
         warnings.simplefilter("error", mo.UnderResolvedWarning)
-        result = mo.ensemble(system, packet, 240.0, 0.0025, realizations=1, detector=(0.0, 1.0), spectrum=True)
+        result = mo.ensemble(
+            system, packet, 240.0, 0.0025, realizations=1, detector=(0.0, 1.0), spectrum=True
+        )
     spectrum = result.spectrum
     assert spectrum.energies.min() < 0.5 and spectrum.energies.max() > 1.4
     np.testing.assert_allclose(spectrum.mean, barrier_transmission(spectrum.energies), atol=1e-3)

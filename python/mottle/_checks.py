@@ -61,12 +61,16 @@ def real_array(name: str, values: object, shape: tuple[int, ...], dtype=np.float
     try:
         array = np.array(values, dtype=dtype, copy=True)
     except (TypeError, ValueError) as error:
-        raise InvalidTypeError(f"{name} must be an array of numbers, got {type(values).__name__}: {error}") from None
+        raise InvalidTypeError(
+            f"{name} must be an array of numbers, got {type(values).__name__}: {error}"
+        ) from None
     if array.shape != shape:
         raise InvalidParameterError(f"{name} must have shape {shape}, got {array.shape}")
     if not np.all(np.isfinite(array)):
         bad = int(np.flatnonzero(~np.isfinite(array.ravel()))[0])
-        raise InvalidParameterError(f"{name} must be finite everywhere, got {array.ravel()[bad]!r} at index {bad}")
+        raise InvalidParameterError(
+            f"{name} must be finite everywhere, got {array.ravel()[bad]!r} at index {bad}"
+        )
     array.setflags(write=False)
     return array
 

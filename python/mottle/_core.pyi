@@ -5,7 +5,15 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-__all__ = ["CHUNK", "DENSITY_FLOOR", "__version__", "draw_packet", "ensemble_chunks", "propagate_one", "realize"]
+__all__ = [
+    "CHUNK",
+    "DENSITY_FLOOR",
+    "__version__",
+    "draw_packet",
+    "ensemble_chunks",
+    "propagate_one",
+    "realize",
+]
 
 __version__: str
 CHUNK: int

@@ -15,7 +15,7 @@ per worker (one task at a time) and ``threads = cores // N`` Rust threads per
 task, so the machine is used fully and never oversubscribed.
 
 Task size: enough chunks that every thread of a task has one, cut so that the
-study makes about eight tasks per task slot (so a worker that finishes early
+study makes about four tasks per task slot (so a worker that finishes early
 finds more work and one that dies loses little).
 """
 
@@ -37,7 +37,7 @@ from .study import StudyPoint, build_packet, build_system, run_arguments
 # A worker killed while running a task makes every task on it "suspicious"; Dask gives up on
 # a task after this many such deaths (its default is 3, low for long runs on preemptible nodes).
 ALLOWED_FAILURES = 10
-TASKS_PER_WORKER = 8
+TASKS_PER_WORKER = 4
 
 
 @dataclass

@@ -28,13 +28,13 @@ class Disorder:
     start: float
     stop: float
 
-    def __add__(self, other: object) -> "DisorderSum":
+    def __add__(self, other: object) -> DisorderSum:
         if not isinstance(other, Disorder):
             return NotImplemented
         return DisorderSum(_terms(self) + _terms(other))
 
     @property
-    def terms(self) -> tuple["Disorder", ...]:
+    def terms(self) -> tuple[Disorder, ...]:
         return (self,)
 
     def correlation(self, x, dx: float | None = None) -> np.ndarray:

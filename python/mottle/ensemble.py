@@ -181,7 +181,9 @@ class EnsembleResult:
     @classmethod
     def from_arrays(cls, arrays: dict) -> EnsembleResult:
         """The inverse of :meth:`to_arrays` (exact)."""
-        samples = {key.split("/", 1)[1]: np.asarray(v) for key, v in arrays.items() if key.startswith("samples/")}
+        samples = {
+            key.split("/", 1)[1]: np.asarray(v) for key, v in arrays.items() if key.startswith("samples/")
+        }
         values = {}
         for item in fields(cls):
             if item.name == "samples":
@@ -262,8 +264,10 @@ class Spectrum:
         samples = np.asarray(samples, dtype=float)
         count = samples.shape[0]
         logs = np.log(np.maximum(samples, 1e-300))
-        spread = (lambda v: np.std(v, axis=0, ddof=1) / np.sqrt(count)) if count > 1 else (
-            lambda v: np.full(v.shape[1], np.nan)
+        spread = (
+            (lambda v: np.std(v, axis=0, ddof=1) / np.sqrt(count))
+            if count > 1
+            else (lambda v: np.full(v.shape[1], np.nan))
         )
         return cls(
             wavenumbers=np.asarray(wavenumbers),
@@ -280,16 +284,31 @@ def _band_modes(system: System, packet) -> np.ndarray:
     """FFT indices of the right-moving grid wavenumbers in the packet's band."""
     grid, model = system.grid, system.model
     if isinstance(packet, GaussianPacket):
-        intervals = [(packet.wavenumber - 3.5 * packet.wavenumber_spread, packet.wavenumber + 3.5 * packet.wavenumber_spread)]
+        intervals = [
+            (
+                packet.wavenumber - 3.5 * packet.wavenumber_spread,
+                packet.wavenumber + 3.5 * packet.wavenumber_spread,
+            )
+        ]
     elif isinstance(packet, RandomPacket):
         corners = packet.corners()
-        intervals = [(min(p.wavenumber - 3.5 * p.wavenumber_spread for p in corners), max(p.wavenumber + 3.5 * p.wavenumber_spread for p in corners))]
+        intervals = [
+            (
+                min(p.wavenumber - 3.5 * p.wavenumber_spread for p in corners),
+                max(p.wavenumber + 3.5 * p.wavenumber_spread for p in corners),
+            )
+        ]
     else:
         entries = packet.packets if isinstance(packet, PacketList) else (packet,)
         intervals = []
         for entry in entries:
             if isinstance(entry, GaussianPacket):
-                intervals.append((entry.wavenumber - 3.5 * entry.wavenumber_spread, entry.wavenumber + 3.5 * entry.wavenumber_spread))
+                intervals.append(
+                    (
+                        entry.wavenumber - 3.5 * entry.wavenumber_spread,
+                        entry.wavenumber + 3.5 * entry.wavenumber_spread,
+                    )
+                )
             else:
                 weight = np.abs(np.fft.fft(entry.values(grid))) ** 2
                 strong = grid.k[weight >= 1e-3 * weight.max()]
@@ -518,14 +537,19 @@ def ensemble(
     ``realizations`` is reached. ``precision="single"`` propagates in f32
     (probabilities still summed in f64); it loses about 1e-7 of the
     probability per step to single-precision FFT rounding (measured), so
-    relative errors grow like ~2e-7 x steps: 1e-4 after 1000 steps. ``progress(done, total)`` is called between chunks.
-    Ctrl-C stops within a second.
+    relative errors grow like ~2e-7 x steps: 1e-4 after 1000 steps.
+    ``progress(done, total)`` is called between chunks. ``spectrum`` (see
+    :class:`Spectrum`): ``None`` resolves the transmission in energy when the
+    run allows it cleanly, ``True`` insists and warns when it is
+    under-resolved, ``False`` skips it. Ctrl-C stops within a second.
     """
     realizations = _checks.integer("realizations", realizations, minimum=1)
     threads = _threads(threads)
     if target_stderr is not None:
         target_stderr = _checks.positive("target_stderr", target_stderr)
-    prepared = plan(system, packet, duration, step, seed, order, detector, snapshots, precision, splitting, spectrum)
+    prepared = plan(
+        system, packet, duration, step, seed, order, detector, snapshots, precision, splitting, spectrum
+    )
     if target_stderr is not None and prepared.run["detector"] is None:
         raise InvalidParameterError("target_stderr needs a detector (or disorder to default it to)")
     fold = _Fold()
@@ -570,7 +594,9 @@ def ensemble_partial(
     count = _checks.integer("count", count, minimum=1)
     if start % CHUNK:
         raise InvalidParameterError(f"start {start} must be a multiple of mottle.CHUNK = {CHUNK}")
-    prepared = plan(system, packet, duration, step, seed, order, detector, snapshots, precision, splitting, spectrum)
+    prepared = plan(
+        system, packet, duration, step, seed, order, detector, snapshots, precision, splitting, spectrum
+    )
     return EnsemblePartial(
         start=start,
         chunks=list(_run_chunks(prepared, start, count, _threads(threads))),

@@ -247,7 +247,10 @@ class PacketList:
         return min(packet.mean_kinetic(model, dx) for packet in self.packets)
 
     def config(self, grid: Grid) -> dict:
-        return {"kind": "list", "values": np.stack([p.values(grid) for p in self.packets]).astype(np.complex128)}
+        return {
+            "kind": "list",
+            "values": np.stack([p.values(grid) for p in self.packets]).astype(np.complex128),
+        }
 
     def packet(self, seed: int, index: int):
         return self.packets[index % len(self.packets)]

@@ -24,7 +24,7 @@ class Potential:
     def values(self, grid: Grid, model: Continuum | Lattice) -> np.ndarray:
         raise NotImplementedError
 
-    def __add__(self, other: object) -> "PotentialSum":
+    def __add__(self, other: object) -> PotentialSum:
         if not isinstance(other, Potential):
             return NotImplemented
         return PotentialSum(_terms(self) + _terms(other))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 import warnings
 from dataclasses import dataclass
@@ -90,11 +91,9 @@ def pauses_for(snapshots, step: float, steps: int) -> list[int]:
     pauses = []
     for time in times:
         if not math.isfinite(time) or time <= 0.0 or time > steps * step * (1 + 1e-12):
-            raise InvalidParameterError(
-                f"snapshot time {time} must lie in (0, duration = {steps * step:g}]"
-            )
+            raise InvalidParameterError(f"snapshot time {time} must lie in (0, duration = {steps * step:g}]")
         pauses.append(max(1, round(time / step)))
-    if any(b <= a for a, b in zip(pauses, pauses[1:])):
+    if any(b <= a for a, b in itertools.pairwise(pauses)):
         raise InvalidParameterError(
             f"snapshot times must increase and be at least one step ({step}) apart, got {list(times)}"
         )
@@ -134,7 +133,9 @@ def resolve_splitting(order, splitting) -> str:
     if splitting is not None:
         _checks.choice("splitting", splitting, tuple(SPLITTINGS))
         if order is not None and order != SPLITTINGS[splitting] and order != 2:
-            raise InvalidParameterError(f"splitting {splitting!r} has order {SPLITTINGS[splitting]}, not {order}")
+            raise InvalidParameterError(
+                f"splitting {splitting!r} has order {SPLITTINGS[splitting]}, not {order}"
+            )
         return splitting
     if isinstance(order, bool) or order not in DEFAULT_SPLITTING:
         raise InvalidParameterError(f"order must be 2 or 4, got {order!r}")
@@ -165,7 +166,8 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
         limit = _three_digits(step * math.pi / kinetic_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the kinetic phase per step reaches {kinetic_phase:.3g} rad at "
-            f"|k| = {band:.3g}, the largest wavenumber this run populates (keep it below pi: step <= {limit:.3g})",
+            f"|k| = {band:.3g}, the largest wavenumber this run populates "
+            f"(keep it below pi: step <= {limit:.3g})",
             UnderResolvedWarning,
             stacklevel=3,
         )

@@ -297,7 +297,11 @@ def _first_arrival(offset: float, velocity: float, acceleration: float, edge: fl
     if discriminant < 0.0:
         return None
     q = -0.5 * (velocity + math.copysign(1.0, velocity if velocity != 0.0 else 1.0) * math.sqrt(discriminant))
-    roots = [t for t in (q / (0.5 * acceleration), -distance / q if q != 0.0 else -1.0) if math.isfinite(t) and t > 0.0]
+    roots = [
+        t
+        for t in (q / (0.5 * acceleration), -distance / q if q != 0.0 else -1.0)
+        if math.isfinite(t) and t > 0.0
+    ]
     return min(roots) if roots else None
 
 

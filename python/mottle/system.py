@@ -35,7 +35,7 @@ class System:
     """
 
     grid: Grid
-    model: Continuum | Lattice = Continuum()
+    model: Continuum | Lattice = Continuum()  # noqa: RUF009 (frozen, so one shared default is safe)
     potential: Potential | None = None
     disorder: Disorder | None = None
     absorber: Absorber | None = None
@@ -64,7 +64,9 @@ class System:
             self.disorder.validate(self.grid)
         if self.absorber is not None:
             if not isinstance(self.absorber, Absorber):
-                raise InvalidTypeError(f"absorber must be a mottle.Absorber, got {type(self.absorber).__name__}")
+                raise InvalidTypeError(
+                    f"absorber must be a mottle.Absorber, got {type(self.absorber).__name__}"
+                )
             if self.absorber.width >= 0.5 * self.grid.length:
                 raise InvalidParameterError(
                     f"absorber width {self.absorber.width} leaves no room inside the box of length "
