@@ -81,7 +81,7 @@ def test_in_process(benchmark, study, tmp_path):
     benchmark.pedantic(
         lambda path: mo.run_study(study, path, progress=False, threads=2),
         setup=lambda: fresh_store(tmp_path, "in-process"),
-        rounds=2,
+        rounds=3,
     )
     record("study: in-process, 2 threads", benchmark)
 
@@ -91,7 +91,7 @@ def test_local_cluster(benchmark, study, client, tmp_path):
     benchmark.pedantic(
         lambda path: mo.run_study(study, path, scheduler=client, progress=False, threads=1),
         setup=lambda: fresh_store(tmp_path, "cluster"),
-        rounds=2,
+        rounds=3,
     )
     record("study: local cluster, 2 workers x 1 thread", benchmark)
     ratio = TIMINGS["study: local cluster, 2 workers x 1 thread"] / TIMINGS["study: in-process, 2 threads"]
