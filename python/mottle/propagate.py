@@ -262,6 +262,34 @@ def check_system(system) -> None:
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
 
 
+def prepare_single_run(system, packet, duration, step, order, seed, index, snapshots, detector, splitting):
+    """Validate a single run's arguments (shared by the core's and the reference's ``propagate``).
+
+    Returns ``(packet, steps, pauses, detector bounds, splitting, potential)``, the
+    packet resolved to realization ``index``'s and the potential realized.
+    """
+    check_system(system)
+    seed = _checks.integer("seed", seed, minimum=0)
+    index = _checks.integer("index", index, minimum=0)
+    if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
+        packet.validate(system.grid)
+        packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
+    check_packet(system, packet)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    splitting = resolve_splitting(order, splitting)
+    steps = steps_for(duration, step)
+    pauses = pauses_for(snapshots, step, steps)
+    check_snapshot_memory(system.grid, len(pauses))
+    bounds = detector_bounds(system, detector)
+
+    from .realize import realize
+
+    potential = realize(system, seed, index)
+    warn_if_coarse(system, packet, step, potential)
+    return packet, steps, pauses, bounds, splitting, potential
+
+
 def propagate(
     system: System,
     packet,
@@ -285,26 +313,11 @@ def propagate(
     the nearest step (``Run.times`` holds them). The GIL is released while the
     core runs and Ctrl-C stops it within a fraction of a second.
     """
-    check_system(system)
-    seed = _checks.integer("seed", seed, minimum=0)
-    index = _checks.integer("index", index, minimum=0)
-    if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
-        packet.validate(system.grid)
-        packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
-    check_packet(system, packet)
-    duration = _checks.positive("duration", duration)
-    step = _checks.positive("step", step)
-    splitting = resolve_splitting(order, splitting)
     _checks.choice("precision", precision, PRECISIONS)
-    steps = steps_for(duration, step)
-    pauses = pauses_for(snapshots, step, steps)
-    check_snapshot_memory(system.grid, len(pauses))
-    bounds = detector_bounds(system, detector)
-
-    from .realize import realize
-
-    potential = realize(system, seed, index)
-    warn_if_coarse(system, packet, step, potential)
+    single = prepare_single_run(
+        system, packet, duration, step, order, seed, index, snapshots, detector, splitting
+    )
+    packet, steps, pauses, bounds, splitting, potential = single
     psi0 = packet.values(system.grid).astype(np.complex128)
     start = initial_phase_space(system, packet) if classical else None
     model = system.model

@@ -41,19 +41,7 @@ import numpy as np
 
 from . import _checks
 from .errors import InvalidParameterError
-from .packets import GaussianPacket, Wavefunction
-from .propagate import (
-    Run,
-    check_packet,
-    check_snapshot_memory,
-    check_system,
-    detector_bounds,
-    initial_phase_space,
-    pauses_for,
-    resolve_splitting,
-    steps_for,
-    warn_if_coarse,
-)
+from .propagate import Run, check_system, initial_phase_space, prepare_single_run
 from .system import System
 
 
@@ -323,25 +311,10 @@ def propagate(
     Same arguments, validation and :class:`mottle.Run` fields as the core's
     (double precision only); see the module docstring for the conventions.
     """
-    check_system(system)
-    seed = _checks.integer("seed", seed, minimum=0)
-    index = _checks.integer("index", index, minimum=0)
-    if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
-        packet.validate(system.grid)
-        packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
-    check_packet(system, packet)
-    duration = _checks.positive("duration", duration)
-    step = _checks.positive("step", step)
-    splitting = resolve_splitting(order, splitting)
-    steps = steps_for(duration, step)
-    pauses = pauses_for(snapshots, step, steps)
-    check_snapshot_memory(system.grid, len(pauses))
-    bounds = detector_bounds(system, detector)
-
-    from .realize import realize
-
-    potential = realize(system, seed, index)
-    warn_if_coarse(system, packet, step, potential)
+    single = prepare_single_run(
+        system, packet, duration, step, order, seed, index, snapshots, detector, splitting
+    )
+    packet, steps, pauses, bounds, splitting, potential = single
     grid = system.grid
     x = grid.start + np.arange(grid.points) * grid.dx
     k = np.asarray(grid.k)

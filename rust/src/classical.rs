@@ -260,6 +260,18 @@ fn first_arrival(offset: f64, velocity: f64, acceleration: f64, edge: f64) -> Op
 mod tests {
     use super::*;
 
+    /// A continuum particle of unit mass, no absorbing layers.
+    fn free_landscape(potential: &[f64], start: f64, dx: f64) -> Landscape<'_> {
+        Landscape {
+            potential,
+            start,
+            dx,
+            left_layer_end: 0,
+            right_layer_start: potential.len(),
+            kinetic: Kinetic::Continuum { mass: 1.0 },
+        }
+    }
+
     fn harmonic(points: usize) -> Vec<f64> {
         (0..points)
             .map(|j| 0.5 * (-10.0 + j as f64 * 20.0 / points as f64).powi(2))
@@ -270,14 +282,7 @@ mod tests {
     fn harmonic_oscillation_returns_after_one_period() {
         // x(t) = x0 cos t for V = x^2/2, m = 1 (any mechanics textbook).
         let potential = harmonic(2048);
-        let landscape = Landscape {
-            potential: &potential,
-            start: -10.0,
-            dx: 20.0 / 2048.0,
-            left_layer_end: 0,
-            right_layer_start: 2048,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
-        };
+        let landscape = free_landscape(&potential, -10.0, 20.0 / 2048.0);
         let mut particle = Particle {
             position: 2.0,
             momentum: 0.0,
@@ -297,14 +302,7 @@ mod tests {
         let potential: Vec<f64> = (0..points)
             .map(|j| if (500..510).contains(&j) { 1.0 } else { 0.0 })
             .collect();
-        let landscape = Landscape {
-            potential: &potential,
-            start: 0.0,
-            dx: 0.1,
-            left_layer_end: 0,
-            right_layer_start: points,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
-        };
+        let landscape = free_landscape(&potential, 0.0, 0.1);
         for momentum in [1.3, 1.5, 3.0f64.sqrt(), -1.7] {
             let mut particle = Particle {
                 position: 30.0,
@@ -326,14 +324,7 @@ mod tests {
     fn exact_flow_matches_the_harmonic_orbit() {
         // x(t) = x0 cos t for V = x^2/2 sampled on a fine grid (any mechanics textbook).
         let potential = harmonic(4096);
-        let landscape = Landscape {
-            potential: &potential,
-            start: -10.0,
-            dx: 20.0 / 4096.0,
-            left_layer_end: 0,
-            right_layer_start: 4096,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
-        };
+        let landscape = free_landscape(&potential, -10.0, 20.0 / 4096.0);
         let mut particle = Particle {
             position: 2.0,
             momentum: 0.0,
