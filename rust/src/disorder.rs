@@ -66,6 +66,19 @@ struct Filtered {
     mean_intensity: f64,
 }
 
+impl Filtered {
+    fn new(planner: &mut FftPlanner<f64>, filter: Vec<f64>, mean_intensity: f64) -> Self {
+        let length = filter.len();
+        Filtered {
+            length,
+            forward: planner.plan_fft_forward(length),
+            inverse: planner.plan_fft_inverse(length),
+            filter,
+            mean_intensity,
+        }
+    }
+}
+
 struct Prepared {
     term: Term,
     first: usize,
@@ -134,13 +147,7 @@ impl Realizer {
                     let scale = rms / power.sqrt();
                     let filter = raw.iter().map(|h| h * scale / length as f64).collect();
                     longest = longest.max(length);
-                    Some(Filtered {
-                        length,
-                        forward: planner.plan_fft_forward(length),
-                        inverse: planner.plan_fft_inverse(length),
-                        filter,
-                        mean_intensity: 0.0,
-                    })
+                    Some(Filtered::new(&mut planner, filter, 0.0))
                 }
                 Kind::Speckle {
                     strength,
@@ -171,13 +178,7 @@ impl Realizer {
                     // E = IFFT(P W)/M with unit complex noise: <|E|^2> = open / M^2 * M.
                     let filter = pupil.iter().map(|p| p / length as f64).collect();
                     longest = longest.max(length);
-                    Some(Filtered {
-                        length,
-                        forward: planner.plan_fft_forward(length),
-                        inverse: planner.plan_fft_inverse(length),
-                        filter,
-                        mean_intensity: open / length as f64,
-                    })
+                    Some(Filtered::new(&mut planner, filter, open / length as f64))
                 }
             };
             prepared.push(Prepared {
