@@ -11,9 +11,10 @@ from __future__ import annotations
 import itertools
 import time
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from conftest import TIMINGS, figure, record
 from mottle.study import parse_study
 

@@ -11,9 +11,10 @@ import subprocess
 import sys
 import textwrap
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from conftest import TIMINGS, figure, record
 
 POINTS = 4096

@@ -9,9 +9,10 @@ error at one step (errors scale as step**4) and the measured time per step.
 
 from __future__ import annotations
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from conftest import TIMINGS, figure, record
 
 GRID = mo.Grid(1024, 20.0)

@@ -3,9 +3,10 @@ reference, and two numpy FFTs of the same size (the floor a split step cannot be
 
 from __future__ import annotations
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from conftest import TIMINGS, figure, record
 
 POINTS = 4096

@@ -9,9 +9,10 @@ its design energy E_min = (hbar**2/2m)(2 pi/width)**2.
 
 import contextlib
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

@@ -10,9 +10,10 @@ import time
 import tracemalloc
 import warnings
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 GRID = mo.Grid(256, 64.0)
 SYSTEM = mo.System(GRID)

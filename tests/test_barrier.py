@@ -6,10 +6,11 @@ starts far left of the barrier; absorbers at both ends take what leaves, and the
 detector adds it back: T = P(x > right) + absorbed_right.
 """
 
-import mottle as mo
 import numpy as np
 import pytest
 from analytic import barrier_transmission, delta_transmission, packet_average
+
+import mottle as mo
 
 pytestmark = pytest.mark.filterwarnings("error::mottle.UnderResolvedWarning")
 

@@ -9,9 +9,10 @@ import sys
 import time
 from pathlib import Path
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 STUDY = """\
 [study]
@@ -212,6 +213,7 @@ def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, in_p
 
 def test_report_draws_the_stored_numbers(workspace, in_process):
     import matplotlib.image
+
     from mottle import report
 
     path = in_process[0]

@@ -8,9 +8,10 @@ step measured (its own error, ~0.5 h**4, is then below 1e-15).
 
 import functools
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 pytestmark = pytest.mark.filterwarnings("error::mottle.UnderResolvedWarning")
 

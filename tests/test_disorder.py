@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-import mottle as mo
 import numpy as np
 import pytest
 from scipy import integrate, stats
+
+import mottle as mo
 
 GRID = mo.Grid(points=8192, length=2048.0)  # dx = 0.25
 REALIZATIONS = 24

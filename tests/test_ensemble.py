@@ -9,9 +9,10 @@ import sys
 import textwrap
 import time
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 GRID = mo.Grid(points=512, length=200.0)
 DISORDER = mo.GaussianDisorder(rms=0.15, correlation_length=1.0, start=0.0, stop=30.0)

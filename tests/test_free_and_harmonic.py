@@ -4,10 +4,11 @@ Both propagators are held to the same formulas, the pure-numpy reference first
 in the chain of trust and the core beside it.
 """
 
-import mottle as mo
 import numpy as np
 import pytest
 from analytic import coherent_state_center, free_gaussian_width, leapfrog_center
+
+import mottle as mo
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

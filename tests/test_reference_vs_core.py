@@ -7,9 +7,10 @@ lattice, random potentials and initial states (fixed seeds), and the three
 splittings.
 """
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 TOLERANCE = 1e-10
 

@@ -7,10 +7,11 @@ split-step run is the splitting error alone: O(h**2) for Strang, O(h**4) for Bla
 
 import functools
 
-import mottle as mo
 import numpy as np
 import pytest
 from scipy.sparse.linalg import expm_multiply
+
+import mottle as mo
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

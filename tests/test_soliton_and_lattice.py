@@ -1,9 +1,10 @@
 """The focusing cubic NLS soliton, and the group velocity of the clean lattice."""
 
-import mottle as mo
 import numpy as np
 import pytest
 from analytic import soliton
+
+import mottle as mo
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import warnings
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def barrier_transmission(energy, height=1.0, width=1.0):

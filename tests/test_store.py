@@ -11,9 +11,10 @@ import sys
 import time
 
 import h5py
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from mottle.store import Finished, StoreError, StoreWriter
 from mottle.study import parse_study
 

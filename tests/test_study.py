@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import math
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 from mottle.study import StudyError, differences, parse_study, point_seed
 
 BASE = """\
