@@ -1,8 +1,9 @@
-"""The closed forms of tests/analytic.py against the published numbers, before they judge anything."""
+"""The closed forms of mottle/exact.py against the published numbers, before they judge anything."""
 
 import numpy as np
 import pytest
-from analytic import (
+
+from mottle.exact import (
     barrier_transmission,
     coherent_state_center,
     delta_transmission,

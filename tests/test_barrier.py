@@ -1,16 +1,16 @@
 """Scattering off barriers: a packet's transmitted probability against the stationary T(E).
 
 A packet measures T averaged over its momentum distribution |phi(k)|**2, so the
-comparison is with integral |phi(k)|**2 T(k) dk (tests/analytic.py). The packet
+comparison is with integral |phi(k)|**2 T(k) dk (mottle/exact.py). The packet
 starts far left of the barrier; absorbers at both ends take what leaves, and the
 detector adds it back: T = P(x > right) + absorbed_right.
 """
 
 import numpy as np
 import pytest
-from analytic import barrier_transmission, delta_transmission, packet_average
 
 import mottle as mo
+from mottle.exact import barrier_transmission, delta_transmission, packet_average
 
 pytestmark = pytest.mark.filterwarnings("error::mottle.UnderResolvedWarning")
 

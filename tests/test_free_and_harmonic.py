@@ -6,9 +6,9 @@ in the chain of trust and the core beside it.
 
 import numpy as np
 import pytest
-from analytic import coherent_state_center, free_gaussian_width, leapfrog_center
 
 import mottle as mo
+from mottle.exact import coherent_state_center, free_gaussian_width, leapfrog_center
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]
@@ -60,7 +60,7 @@ def test_coherent_state_oscillates_rigidly(propagate, hbar, mass, frequency, len
         run = propagate(system, packet, 6.0, step, snapshots=times)
         exact = coherent_state_center(times, start, momentum, frequency, mass)
         # The Strang error: for a quadratic potential <x>, <p> follow the Stormer-Verlet map
-        # exactly (tests/analytic.py), x_n = x0 cos(n theta) + p0 h / (m sin theta) sin(n theta)
+        # exactly (mottle/exact.py), x_n = x0 cos(n theta) + p0 h / (m sin theta) sin(n theta)
         # with theta/h = w (1 + (w h)**2/24 + ...) and h/sin(theta) = (1 + (w h)**2/8 + ...)/w:
         # the centre lags by amplitude * w t (w h)**2/24 and the amplitude is off by (w h)**2/8.
         bound = amplitude * (frequency * step) ** 2 * (frequency * times / 24.0 + 1.0 / 8.0)

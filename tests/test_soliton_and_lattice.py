@@ -2,9 +2,9 @@
 
 import numpy as np
 import pytest
-from analytic import soliton
 
 import mottle as mo
+from mottle.exact import soliton
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

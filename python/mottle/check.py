@@ -18,6 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .exact import barrier_transmission, packet_average
+
 
 @dataclass(frozen=True)
 class Outcome:
@@ -149,40 +151,6 @@ def format_table(results: list[Result]) -> str:
 
 
 # --------------------------------------------------------------------------- closed forms
-
-
-def barrier_transmission(energy, height: float, width: float, hbar: float = 1.0, mass: float = 1.0):
-    """Stationary T(E) of a rectangular barrier of ``height`` V0 on ``0 < x < width``.
-
-    Griffiths, Introduction to Quantum Mechanics, 2nd ed. (2005), problem 2.33:
-    E < V0: T = [1 + V0^2 sinh^2(kappa a) / (4E(V0 - E))]^-1, kappa = sqrt(2m(V0 - E))/hbar;
-    E > V0: sinh -> sin with q = sqrt(2m(E - V0))/hbar and denominator 4E(E - V0);
-    E = V0: T = [1 + m V0 a^2 / (2 hbar^2)]^-1.
-    """
-    energy = np.asarray(energy, dtype=float)
-    result = np.full(energy.shape, 1.0 / (1.0 + mass * height * width**2 / (2.0 * hbar**2)))
-    below, above = energy < height, energy > height
-    e = energy[below]
-    kappa = np.sqrt(2.0 * mass * (height - e)) / hbar
-    result[below] = 1.0 / (1.0 + height**2 * np.sinh(kappa * width) ** 2 / (4.0 * e * (height - e)))
-    e = energy[above]
-    q = np.sqrt(2.0 * mass * (e - height)) / hbar
-    result[above] = 1.0 / (1.0 + height**2 * np.sin(q * width) ** 2 / (4.0 * e * (e - height)))
-    return result
-
-
-def packet_average(function, wavenumber: float, width: float, spreads: float = 10.0, samples: int = 4001):
-    """``integral |phi(k)|^2 f(k) dk`` for the Gaussian packet of rms width ``width`` (Simpson's rule).
-
-    ``|phi(k)|^2`` is the normal density of mean k0 and rms 1/(2 width) (DESIGN.md's packet).
-    """
-    spread = 0.5 / width
-    k = np.linspace(wavenumber - spreads * spread, wavenumber + spreads * spread, samples)
-    values = (
-        np.exp(-0.5 * ((k - wavenumber) / spread) ** 2) / (math.sqrt(2.0 * math.pi) * spread) * function(k)
-    )
-    h = k[1] - k[0]
-    return h / 3.0 * (values[0] + values[-1] + 4.0 * values[1:-1:2].sum() + 2.0 * values[2:-1:2].sum())
 
 
 # --------------------------------------------------------------------------- cases

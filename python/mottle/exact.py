@@ -1,8 +1,8 @@
-"""Closed-form results the tests compare with; each names its source.
+"""Closed-form results that `mottle check` and the tests compare with; each names its source.
 
-Plain numpy, independent of mottle, so that the formulas themselves can be
-checked against the published numbers (tests/test_analytic.py) before they are
-used to judge the propagators.
+Plain numpy, independent of the propagators, so that the formulas themselves
+are checked against the published numbers (tests/test_analytic.py) before
+they judge anything.
 """
 
 from __future__ import annotations
