@@ -3,9 +3,11 @@
 //! `bindings`, built with the `python` feature).
 
 pub mod classical;
+pub mod classical_ensemble;
 pub mod disorder;
 pub mod ensemble;
 pub mod error;
+pub mod localization;
 pub mod observables;
 pub mod packets;
 pub mod propagate;
@@ -13,6 +15,7 @@ pub mod random;
 pub mod real;
 pub mod splitting;
 pub mod stepper;
+pub mod transfer;
 
 #[cfg(feature = "python")]
 mod bindings;
