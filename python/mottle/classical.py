@@ -20,14 +20,15 @@ import numpy as np
 
 from . import _checks, _core
 from .errors import InvalidParameterError, InvalidTypeError
+from .grid import _memory_bytes
 from .packets import GaussianPacket
 from .propagate import Run, check_system, pauses_for, propagate, steps_for
 from .realize import realize
 from .statistics import Stat
 from .system import System
 
-# The largest ensemble: its phase-space points take 17 bytes per particle.
-_MAX_PARTICLES = 1 << 28
+# Bytes per particle: the core's phase-space points (24) and the arrays returned (17).
+_BYTES_PER_PARTICLE = 41
 
 
 @dataclass(frozen=True, eq=False)
@@ -134,9 +135,12 @@ def classical_ensemble(
     duration = _checks.positive("duration", duration)
     step = _checks.positive("step", step)
     particles = _checks.integer("particles", particles, minimum=1)
-    if particles > _MAX_PARTICLES:
+    have = _memory_bytes()
+    if particles * _BYTES_PER_PARTICLE > have // 2:
         raise InvalidParameterError(
-            f"particles={particles} is more than this ensemble accepts: use <= {_MAX_PARTICLES}"
+            f"particles={particles} need {particles * _BYTES_PER_PARTICLE / 2**30:.1f} GiB, "
+            f"more than half this machine's {have / 2**30:.1f} GiB: "
+            f"use at most {have // 2 // _BYTES_PER_PARTICLE} particles"
         )
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)

@@ -102,7 +102,8 @@ def coherent_peaks(result, wavenumber: float, background, snapshot: int = -1, wi
         flank = (distance >= inner) & (distance <= outer)
         if np.count_nonzero(flank) < 2:
             raise InvalidParameterError(
-                f"the background window [{inner:g}, {outer:g}] holds no grid wavenumber (dk = {bin_width:.4g})"
+                f"the background window [{inner:g}, {outer:g}] holds no grid wavenumber "
+                f"(dk = {bin_width:.4g})"
             )
         peak = float(np.mean(density[peak_window]))
         level = float(np.mean(density[flank]))

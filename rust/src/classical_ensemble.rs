@@ -23,6 +23,9 @@ use crate::random::Stream;
 /// packet's `u64::MAX`.
 pub const CLASSICAL_PURPOSE: u64 = 1 << 62;
 
+/// Steps between two looks at the cancel flag.
+const CANCEL_POLL_STEPS: usize = 256;
+
 /// Particles per parallel task (not part of any result: each particle has its own stream).
 const PARTICLES_PER_TASK: usize = 256;
 
@@ -113,19 +116,26 @@ pub fn run_particles(
     let start = landscape.start;
     let dx = landscape.dx;
 
-    let partial_counts: Vec<Vec<u64>> = particles
+    // Integer counts: summed per rayon split and then across splits, which is
+    // exact in any grouping, so the histogram does not depend on threads.
+    let empty = || vec![0u64; snapshots * points];
+    let counts = particles
         .par_chunks_mut(PARTICLES_PER_TASK)
-        .map(|chunk| {
-            let mut counts = vec![0u64; snapshots * points];
+        .try_fold(empty, |mut counts, chunk| {
             let mut done = 0;
             for (s, &pause) in spec.pauses.iter().chain([&spec.steps]).enumerate() {
-                if cancel.load(Ordering::Relaxed) {
-                    return Err(CoreError::Interrupted);
+                // Slices of steps between looks at the cancel flag; a particle
+                // takes the same sub-steps however its run is sliced.
+                while done < pause {
+                    if cancel.load(Ordering::Relaxed) {
+                        return Err(CoreError::Interrupted);
+                    }
+                    let slice = CANCEL_POLL_STEPS.min(pause - done);
+                    for particle in chunk.iter_mut() {
+                        landscape.advance(particle, dt, slice * substeps);
+                    }
+                    done += slice;
                 }
-                for particle in chunk.iter_mut() {
-                    landscape.advance(particle, dt, (pause - done) * substeps);
-                }
-                done = pause;
                 if s < snapshots {
                     let row = &mut counts[s * points..(s + 1) * points];
                     for particle in chunk.iter().filter(|p| p.absorbed == 0) {
@@ -136,14 +146,10 @@ pub fn run_particles(
             }
             Ok(counts)
         })
-        .collect::<Result<_, CoreError>>()?;
-    let mut counts = vec![0u64; snapshots * points];
-    for partial in partial_counts {
-        counts
-            .iter_mut()
-            .zip(partial)
-            .for_each(|(total, part)| *total += part);
-    }
+        .try_reduce(empty, |mut total, part| {
+            total.iter_mut().zip(part).for_each(|(t, p)| *t += p);
+            Ok(total)
+        })?;
     Ok(ClassicalOutput {
         particles,
         counts,
