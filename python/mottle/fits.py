@@ -140,17 +140,25 @@ class TailFit:
     left: LocalizationFit
     right: LocalizationFit
 
+    def _weights(self) -> np.ndarray:
+        errors = np.array([self.left.stderr, self.right.stderr])
+        if not np.all(errors > 0.0):
+            return np.ones(2)  # exact tails: a plain average
+        return errors**-2.0
+
     @property
     def localization_length(self) -> float:
         """The two sides' lengths averaged with inverse-variance weights."""
-        weights = np.array([self.left.stderr, self.right.stderr]) ** -2.0
         values = np.array([self.left.localization_length, self.right.localization_length])
+        weights = self._weights()
         return float(np.sum(weights * values) / np.sum(weights))
 
     @property
     def stderr(self) -> float:
-        weights = np.array([self.left.stderr, self.right.stderr]) ** -2.0
-        return float(1.0 / math.sqrt(np.sum(weights)))
+        """Standard error of :attr:`localization_length` (the sides taken as independent)."""
+        weights = self._weights()
+        errors = np.array([self.left.stderr, self.right.stderr])
+        return float(math.sqrt(np.sum((weights * errors) ** 2)) / np.sum(weights))
 
 
 def _window(x: np.ndarray, window, side: str) -> np.ndarray:

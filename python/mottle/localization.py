@@ -29,17 +29,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _checks, _core
+from .ensemble import default_threads
 from .errors import InvalidParameterError, InvalidTypeError
 from .grid import _memory_bytes
 from .models import Lattice
 from .statistics import Stat
 from .system import System
-
-
-def default_threads() -> int:
-    from .ensemble import default_threads as threads
-
-    return threads()
 
 
 def _threads(threads) -> int:

@@ -144,6 +144,14 @@ mod tests {
     }
 
     #[test]
+    fn shared_inputs_cross_threads() {
+        fn assert_send_sync<T: Send + Sync>() {}
+        assert_send_sync::<Sample<'static>>();
+        assert_send_sync::<Medium>();
+        assert_send_sync::<crate::classical_ensemble::ClassicalSpec>();
+    }
+
+    #[test]
     fn anderson_lyapunov_matches_thouless_at_weak_disorder() {
         // gamma = W^2 / (24 (4 - E^2)) per site (Thouless, Ill-Condensed Matter,
         // Les Houches 1978); re-computed xi(1.5) = 41.2 for W = 1 (REFERENCES.md).
