@@ -105,8 +105,11 @@ class Lyapunov:
 
     ``samples[r]`` is realization ``r``'s exponent over the region, per unit
     length: ``ln(|v_end| / |v_start|) / length`` for the solution that vanishes
-    at the region's left edge (lattice ``v = (psi[n], psi[n-1])``, continuum
-    ``v = (psi, psi'/k)`` with ``k = sqrt(2m|E|)/hbar``). ``gamma`` is the
+    at the region's left edge (lattice ``v = (psi[n], psi[n-1])`` measured, inside
+    the band ``E = -2J cos q``, by ``|v|**2 = (psi[n] - cos q psi[n-1])**2 +
+    (sin q psi[n-1])**2``; continuum ``v = (psi, psi'/k)`` with
+    ``k = sqrt(2m|E|)/hbar``: norms under which a clean cell is a rotation, so
+    that weak disorder adds no phase-dependent bias). ``gamma`` is the
     amplitude decay rate: ``|psi| ~ exp(-gamma |x|)``, ``xi = 1/gamma`` and
     ``<ln T> ~ -2 gamma L``. Each sample carries an O(1/length) bias from the
     start and the norm; its spread is about ``sqrt(gamma / length)``.
