@@ -2,11 +2,15 @@
 
 from . import reference
 from .absorber import Absorber
+from .classical import ClassicalEnsemble, QuantumClassical, classical_ensemble, quantum_classical
 from .disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
 from .ensemble import CHUNK, EnsemblePartial, EnsembleResult, ensemble, ensemble_partial, merge_partials
 from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
+from .fits import LocalizationFit, TailFit, bootstrap_interval, fit_log_transmission, log_density_tails
 from .grid import Grid
+from .localization import Lyapunov, TransmissionSpectrum, born_lyapunov, lyapunov, transmission_spectrum
 from .models import Continuum, Lattice
+from .momentum import MomentumPeaks, coherent_peaks
 from .packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
 from .potentials import Barrier, Harmonic, Tabulated
 from .propagate import Run, propagate
@@ -62,4 +66,24 @@ __all__ = [
     "realize",
     "reference",
     "run_study",
+]
+
+# Localization and transport statistics (transfer matrices, fits, classical ensembles).
+__all__ += [
+    "ClassicalEnsemble",
+    "LocalizationFit",
+    "Lyapunov",
+    "MomentumPeaks",
+    "QuantumClassical",
+    "TailFit",
+    "TransmissionSpectrum",
+    "bootstrap_interval",
+    "born_lyapunov",
+    "classical_ensemble",
+    "coherent_peaks",
+    "fit_log_transmission",
+    "log_density_tails",
+    "lyapunov",
+    "quantum_classical",
+    "transmission_spectrum",
 ]

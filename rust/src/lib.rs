@@ -3,10 +3,12 @@
 //! `bindings`, built with the `python` feature).
 
 pub mod classical;
+pub mod classical_ensemble;
 pub mod disorder;
 pub mod ensemble;
 pub mod error;
 pub mod kernels;
+pub mod localization;
 pub mod observables;
 pub mod packets;
 pub mod propagate;
@@ -15,6 +17,7 @@ pub mod real;
 pub mod spectrum;
 pub mod splitting;
 pub mod stepper;
+pub mod transfer;
 
 #[cfg(feature = "python")]
 mod bindings;

@@ -19,7 +19,7 @@ use crate::stepper::Shared;
 /// One disorder term as the Python specs describe it (`Disorder.config()`).
 #[derive(FromPyObject)]
 #[pyo3(from_item_all)]
-struct TermConfig {
+pub(crate) struct TermConfig {
     kind: String,
     start: f64,
     stop: f64,
@@ -60,17 +60,17 @@ impl TermConfig {
     }
 }
 
-fn terms(configs: &[TermConfig]) -> Result<Vec<Term>, CoreError> {
+pub(crate) fn terms(configs: &[TermConfig]) -> Result<Vec<Term>, CoreError> {
     configs.iter().map(TermConfig::term).collect()
 }
 
 /// The grid line a realization lives on.
 #[derive(FromPyObject)]
 #[pyo3(from_item_all)]
-struct LineConfig {
-    points: usize,
-    dx: f64,
-    start: f64,
+pub(crate) struct LineConfig {
+    pub(crate) points: usize,
+    pub(crate) dx: f64,
+    pub(crate) start: f64,
 }
 
 /// Realization `index` of `seed`: the disorder terms added to `base`.

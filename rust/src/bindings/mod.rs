@@ -21,6 +21,7 @@ use crate::splitting::Splitting;
 use crate::stepper::{Setup, Shared};
 
 mod ensemble;
+mod localization;
 
 /// How long the waiting thread sleeps between looks for Ctrl-C.
 const SIGNAL_POLL: Duration = Duration::from_millis(20);
@@ -287,6 +288,7 @@ fn propagate_one<'py>(
 fn core_module(module: &Bound<'_, PyModule>) -> PyResult<()> {
     module.add_function(wrap_pyfunction!(propagate_one, module)?)?;
     ensemble::register(module)?;
+    localization::register(module)?;
     module.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

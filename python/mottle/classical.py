@@ -1,0 +1,233 @@
+"""Classical particles beside the quantum packet: the same potential, the packet's Wigner distribution.
+
+For the minimum-uncertainty Gaussian packet of rms width ``s`` (centre x0,
+wavenumber k0) the Wigner function is positive and factorizes:
+``x ~ N(x0, s**2)`` and ``p ~ N(hbar k0, (hbar/(2 s))**2)``, independent. Each
+particle is moved by Hamilton's equations in the realization's potential
+(piecewise-linear between grid points, periodic box, absorbed on entering an
+absorbing layer) with the symplectic leapfrog of the quantum runs' classical
+trajectory; every particle shares one sub-step, short enough that the
+fastest crosses at most a quarter of a cell per sub-step. What the classical
+ensemble lacks is exactly the quantum effects: tunnelling, over-barrier
+reflection, interference and localization.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _checks, _core
+from .errors import InvalidParameterError, InvalidTypeError
+from .grid import _memory_bytes
+from .packets import GaussianPacket
+from .propagate import Run, check_system, pauses_for, propagate, steps_for
+from .realize import realize
+from .statistics import Stat
+from .system import System
+
+# Bytes per particle: the core's phase-space points (24) and the arrays returned (17).
+_BYTES_PER_PARTICLE = 41
+
+
+@dataclass(frozen=True, eq=False)
+class ClassicalEnsemble:
+    """Classical particles sampled from a packet's Wigner distribution, after the run.
+
+    ``position``, ``momentum`` and ``absorbed`` (-1 left layer, +1 right, 0 in
+    the box) per particle at the end; a particle's position and momentum are
+    where it entered a layer if it was absorbed. ``density[s]`` at
+    ``times[s]`` is the particles' density per unit length at the grid points
+    ``x`` (histogram on the grid, ``sum density * dx`` = fraction still in the
+    box), the counterpart of ``|psi|**2``. ``transmission`` and ``reflection``
+    are :class:`Stat` records of the indicator per particle (mean = fraction,
+    binomial standard error), with the quantum runs' detector:
+    ``R = P(x < left) + absorbed_left``, ``T = P(x > right) + absorbed_right``
+    (``None`` without a detector).
+    """
+
+    times: np.ndarray
+    x: np.ndarray
+    position: np.ndarray
+    momentum: np.ndarray
+    absorbed: np.ndarray
+    density: np.ndarray
+    detector: tuple[float, float] | None
+    substeps: int
+
+    @property
+    def count(self) -> int:
+        return int(self.position.size)
+
+    def _fraction(self, chosen: np.ndarray) -> Stat:
+        return Stat.of(chosen.astype(float))
+
+    @property
+    def transmission(self) -> Stat | None:
+        if self.detector is None:
+            return None
+        return self._fraction(
+            (self.absorbed == 1) | ((self.absorbed == 0) & (self.position > self.detector[1]))
+        )
+
+    @property
+    def reflection(self) -> Stat | None:
+        if self.detector is None:
+            return None
+        return self._fraction(
+            (self.absorbed == -1) | ((self.absorbed == 0) & (self.position < self.detector[0]))
+        )
+
+    @property
+    def absorbed_left(self) -> float:
+        return float(np.mean(self.absorbed == -1))
+
+    @property
+    def absorbed_right(self) -> float:
+        return float(np.mean(self.absorbed == 1))
+
+
+def _detector(detector) -> tuple[float, float] | None:
+    if detector is None:
+        return None
+    try:
+        left, right = detector
+    except (TypeError, ValueError):
+        raise InvalidTypeError(f"detector must be a pair (left, right), got {detector!r}") from None
+    left = _checks.real("detector left", left)
+    right = _checks.real("detector right", right)
+    if left > right:
+        raise InvalidParameterError(f"detector left={left} must be <= right={right}")
+    return left, right
+
+
+def classical_ensemble(
+    system: System,
+    packet: GaussianPacket,
+    duration: float,
+    step: float,
+    particles: int,
+    seed: int = 0,
+    index: int = 0,
+    detector=None,
+    snapshots=(),
+    threads: int | None = None,
+) -> ClassicalEnsemble:
+    """Move ``particles`` classical particles, drawn from ``packet``'s Wigner distribution,
+    through disorder realization ``index`` of ``seed`` (the potential of
+    ``mottle.realize(system, seed, index)``) for ``duration`` in steps of ``step``.
+
+    The draws depend on ``(seed, index, particle)`` alone, never on
+    ``threads``. ``detector`` and ``snapshots`` mean what they mean for
+    :func:`mottle.propagate` (``detector`` defaults to the disorder region, as
+    in :func:`mottle.ensemble`). The GIL is released and Ctrl-C stops the run.
+    """
+    from .localization import _threads
+
+    check_system(system)
+    if not isinstance(packet, GaussianPacket):
+        raise InvalidTypeError(
+            f"packet must be a mottle.GaussianPacket (its Wigner distribution is a Gaussian), "
+            f"got {type(packet).__name__}"
+        )
+    packet.validate(system.grid)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    particles = _checks.integer("particles", particles, minimum=1)
+    have = _memory_bytes()
+    if particles * _BYTES_PER_PARTICLE > have // 2:
+        raise InvalidParameterError(
+            f"particles={particles} need {particles * _BYTES_PER_PARTICLE / 2**30:.1f} GiB, "
+            f"more than half this machine's {have / 2**30:.1f} GiB: "
+            f"use at most {have // 2 // _BYTES_PER_PARTICLE} particles"
+        )
+    seed = _checks.integer("seed", seed, minimum=0)
+    index = _checks.integer("index", index, minimum=0)
+    threads = _threads(threads)
+    steps = steps_for(duration, step)
+    pauses = pauses_for(snapshots, step, steps)
+    if detector is None and system.disorder is not None:
+        detector = (system.disorder.start, system.disorder.stop)
+    detector = _detector(detector)
+    grid, model = system.grid, system.model
+    hbar = model.hbar
+    left_end, right_start = system.layer_bounds()
+    config = {
+        "center": packet.center,
+        "position_spread": packet.width,
+        "momentum": hbar * packet.wavenumber,
+        "momentum_spread": hbar * packet.wavenumber_spread,
+        "particles": particles,
+        "seed": seed,
+        "index": index,
+        "step": step,
+        "steps": steps,
+        "pauses": pauses,
+        "start": grid.start,
+        "left_layer_end": left_end,
+        "right_layer_start": right_start,
+        "threads": threads,
+    }
+    medium = {
+        "model": model.kind,
+        "hbar": hbar,
+        "mass": getattr(model, "mass", 1.0),
+        "hopping": getattr(model, "hopping", 1.0),
+        "dx": grid.dx,
+    }
+    out = _core.classical_particles(config, medium, realize(system, seed, index))
+    return ClassicalEnsemble(
+        times=np.asarray(pauses, dtype=float) * step,
+        x=np.asarray(grid.x),
+        position=out["position"],
+        momentum=out["momentum"],
+        absorbed=out["absorbed"],
+        density=out["counts"] / (particles * grid.dx),
+        detector=detector,
+        substeps=int(out["substeps"]),
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class QuantumClassical:
+    """A quantum run and its classical ensemble in the same realization, side by side."""
+
+    quantum: Run
+    classical: ClassicalEnsemble
+
+    def table(self) -> str:
+        """Transmission and reflection of both, as text."""
+        lines = [f"{'':14}{'quantum':>12}{'classical':>22}"]
+        for name in ("transmission", "reflection"):
+            quantum = getattr(self.quantum, name)
+            classical = getattr(self.classical, name)
+            if quantum is None or classical is None:
+                continue
+            lines.append(f"{name:14}{quantum:12.6f}{classical.mean:12.6f} ± {classical.stderr:.1g}")
+        return "\n".join(lines)
+
+
+def quantum_classical(
+    system: System,
+    packet: GaussianPacket,
+    duration: float,
+    step: float,
+    particles: int,
+    seed: int = 0,
+    index: int = 0,
+    detector=None,
+    snapshots=(),
+    threads: int | None = None,
+) -> QuantumClassical:
+    """:func:`mottle.propagate` and :func:`classical_ensemble` on the same realization, packet,
+    detector and snapshots (the detector defaults to the disorder region for both)."""
+    if detector is None and isinstance(system, System) and system.disorder is not None:
+        detector = (system.disorder.start, system.disorder.stop)
+    classical = classical_ensemble(
+        system, packet, duration, step, particles, seed, index, detector, snapshots, threads
+    )
+    quantum = propagate(
+        system, packet, duration, step, seed=seed, index=index, snapshots=snapshots, detector=detector
+    )
+    return QuantumClassical(quantum=quantum, classical=classical)
