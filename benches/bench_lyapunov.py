@@ -15,9 +15,10 @@ from __future__ import annotations
 import math
 import os
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 SITES = 10**6
 REALIZATIONS = 100

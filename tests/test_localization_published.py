@@ -7,9 +7,10 @@ relative) sits well inside each tolerance; the seeds are fixed.
 
 import math
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def anderson(width, points=2**18):

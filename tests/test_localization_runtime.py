@@ -5,8 +5,9 @@ import signal
 import threading
 import time
 
-import mottle as mo
 import pytest
+
+import mottle as mo
 
 
 def long_chain():

@@ -1,8 +1,9 @@
 """Coherent backscattering and forward scattering in the ensemble's mean momentum density."""
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def momentum_result(k, momentum, times=(1.0,)):

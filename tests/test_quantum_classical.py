@@ -2,9 +2,10 @@
 
 import math
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def barrier_system(points=2048, length=409.6):

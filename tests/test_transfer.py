@@ -9,9 +9,10 @@ test_localization_published.py.
 
 import math
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def griffiths_barrier(energy, height, width, hbar=1.0, mass=1.0):

@@ -6,9 +6,10 @@ Every xi is the amplitude length: |psi| ~ exp(-|x|/xi), <ln T> ~ -2 L/xi.
 import math
 import warnings
 
-import mottle as mo
 import numpy as np
 import pytest
+
+import mottle as mo
 
 
 def anderson_slab(width, sites, margin=8):

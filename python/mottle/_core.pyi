@@ -9,8 +9,11 @@ __all__ = [
     "CHUNK",
     "DENSITY_FLOOR",
     "__version__",
+    "classical_particles",
     "draw_packet",
     "ensemble_chunks",
+    "log_transmissions_of",
+    "lyapunov_exponents_of",
     "propagate_one",
     "realize",
 ]
@@ -44,3 +47,23 @@ def ensemble_chunks(
     disorder: list[dict[str, Any]],
     packets: dict[str, Any],
 ) -> list[dict[str, Any]]: ...
+def lyapunov_exponents_of(
+    line: dict[str, Any],
+    disorder: list[dict[str, Any]],
+    static_potential: npt.NDArray[np.float64],
+    medium: dict[str, Any],
+    region: tuple[int, int],
+    energies: list[float],
+    realizations: dict[str, Any],
+) -> npt.NDArray[np.float64]: ...
+def log_transmissions_of(
+    line: dict[str, Any],
+    disorder: list[dict[str, Any]],
+    static_potential: npt.NDArray[np.float64],
+    medium: dict[str, Any],
+    energies: list[float],
+    realizations: dict[str, Any],
+) -> npt.NDArray[np.float64]: ...
+def classical_particles(
+    config: dict[str, Any], medium: dict[str, Any], potential: npt.NDArray[np.float64]
+) -> dict[str, Any]: ...

@@ -128,8 +128,8 @@ class EnsembleResult:
     log_density: np.ndarray
     log_density_stderr: np.ndarray
     momentum: np.ndarray
-    spectrum_wavenumbers: np.ndarray
-    spectrum_energies: np.ndarray
+    spectrum_wavenumbers: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    spectrum_energies: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def spectrum(self) -> Spectrum | None:

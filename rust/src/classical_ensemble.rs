@@ -1,6 +1,7 @@
 //! Many classical particles in one realization's potential: the classical
 //! counterpart of a quantum packet, sampled from the packet's Wigner
-//! distribution and moved by the leapfrog of `classical`.
+//! distribution and moved like the single-run particle of `classical`
+//! (exactly, cell by cell, in the continuum; by the leapfrog on the lattice).
 //!
 //! For the minimum-uncertainty Gaussian packet of rms width `s` the Wigner
 //! function is a product of Gaussians: `x ~ N(x0, s^2)`, `p ~ N(hbar k0, (hbar/2s)^2)`,
@@ -16,12 +17,7 @@ use rayon::prelude::*;
 use crate::classical::{Landscape, Particle};
 use crate::error::{invalid, CoreError};
 use crate::propagate::validate_pauses;
-use crate::random::Stream;
-
-/// Purposes `CLASSICAL_PURPOSE + index` key the particle streams of
-/// realization `index`: far from the disorder terms' `0, 1, ...` and the
-/// packet's `u64::MAX`.
-pub const CLASSICAL_PURPOSE: u64 = 1 << 62;
+use crate::random::{Stream, CLASSICAL_PURPOSE};
 
 /// Steps between two looks at the cancel flag.
 const CANCEL_POLL_STEPS: usize = 256;
@@ -111,7 +107,6 @@ pub fn run_particles(
         .max_by(|a, b| landscape.energy(a).total_cmp(&landscape.energy(b)))
         .ok_or_else(|| CoreError::Internal("no particle drawn".into()))?;
     let substeps = landscape.substeps(&fastest, spec.step);
-    let dt = spec.step / substeps as f64;
     let snapshots = spec.pauses.len();
     let start = landscape.start;
     let dx = landscape.dx;
@@ -132,7 +127,7 @@ pub fn run_particles(
                     }
                     let slice = CANCEL_POLL_STEPS.min(pause - done);
                     for particle in chunk.iter_mut() {
-                        landscape.advance(particle, dt, slice * substeps);
+                        landscape.evolve(particle, slice as f64 * spec.step, slice * substeps);
                     }
                     done += slice;
                 }

@@ -7,8 +7,11 @@
 use rand_chacha::ChaCha8Rng;
 use rand_core::{Rng, SeedableRng};
 
-/// Purpose codes that keep independent uses of one seed apart.
+/// Purpose codes that keep independent uses of one seed apart: disorder terms
+/// use their position `0, 1, ...`, drawn packets `PACKET_PURPOSE`, and the
+/// classical particles of realization `index` `CLASSICAL_PURPOSE + index`.
 pub const PACKET_PURPOSE: u64 = u64::MAX;
+pub const CLASSICAL_PURPOSE: u64 = 1 << 62;
 
 fn splitmix64(state: &mut u64) -> u64 {
     // SplitMix64 (Steele, Lea & Flood, OOPSLA 2014), a standard seed expander.
