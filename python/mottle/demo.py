@@ -68,11 +68,14 @@ class DemoOutcome:
 
 
 def born_xi(strength: float, correlation_length: float, wavenumber: float) -> float:
-    """Born localization length of a speckle, 1/gamma with gamma = C~(2k)/(2k^2) (hbar = m = 1)."""
+    """Born localization length (amplitude) of the demo's speckle, ``1 / mottle.born_lyapunov``."""
     from .disorder import Speckle
+    from .grid import Grid
+    from .localization import born_lyapunov
+    from .system import System
 
-    spectrum = float(Speckle(strength, correlation_length, 0.0, 1.0).power_spectrum(2.0 * wavenumber))
-    gamma = spectrum / (2.0 * wavenumber**2)
+    system = System(Grid(1024, 240.0, center=10.0), disorder=Speckle(strength, correlation_length, 0.0, 40.0))
+    gamma = float(born_lyapunov(system, 0.5 * wavenumber**2))
     return 1.0 / gamma if gamma > 0 else math.inf
 
 
