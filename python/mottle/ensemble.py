@@ -249,8 +249,9 @@ class Spectrum:
     changing (measured: 2% short at the warning's duration, 0.3% at 1.4x it).
     The step must keep the kinetic phase per step below 2 pi at the grid's
     largest wavenumber, or modes alias (warned). The band is the packet's
-    (``|k - k0| <= 3.5 sigma_k``, right-moving), on the grid's wavenumbers. ``mean``/``stderr`` are over realizations, ``log_mean``/
-    ``log_stderr`` those of ``ln T`` (typical transmission ``exp(log_mean)``).
+    (``|k - k0| <= 3.5 sigma_k``, right-moving), on the grid's wavenumbers.
+    ``mean``/``stderr`` are over realizations, ``log_mean``/``log_stderr``
+    those of ``ln T`` (typical transmission ``exp(log_mean)``).
     """
 
     wavenumbers: np.ndarray
