@@ -161,3 +161,18 @@ def test_reference_accepts_the_same_seed_and_index_as_the_core():
     first = mo.reference.propagate(system, packet, seed=3, index=7, **options)
     second = mo.propagate(system, packet, seed=3, index=7, **options)
     assert_close("psi", first.psi, second.psi)
+
+
+def test_probabilities_at_each_snapshot_add_up_and_match_the_reference():
+    # Exact bookkeeping at every snapshot, not only at the end: norm + absorbed = 1 to rounding.
+    system = mo.System(mo.Grid(1024, 200.0), potential=mo.Barrier(0.5, 0.0, 1.0), absorber=mo.Absorber(30.0))
+    packet = mo.GaussianPacket(-40.0, 1.2, 5.0)
+    options = {"detector": (0.0, 1.0), "snapshots": (20.0, 40.0, 80.0)}
+    core = mo.propagate(system, packet, 80.0, 0.05, **options)
+    reference = mo.reference.propagate(system, packet, 80.0, 0.05, **options)
+    np.testing.assert_allclose(core.norms + core.absorbed_lefts + core.absorbed_rights, 1.0, atol=1e-12)
+    assert core.transmissions[-1] == core.transmission and np.all(np.diff(core.absorbed_rights) >= 0.0)
+    for name in ("transmissions", "reflections", "absorbed_lefts", "absorbed_rights"):
+        np.testing.assert_allclose(getattr(core, name), getattr(reference, name), atol=1e-12, err_msg=name)
+    plain = mo.propagate(system, packet, 80.0, 0.05, snapshots=(20.0,))
+    assert plain.transmissions is None and plain.reflections is None

@@ -31,7 +31,9 @@ class Run:
     are at the snapshots. Expectation values are those of the probability still
     in the box, normalized by it. ``reflection = P(x < left) + absorbed_left`` and
     ``transmission = P(x > right) + absorbed_right`` for ``detector=(left, right)``
-    (``None`` without a detector). ``classical_position`` and
+    (``None`` without a detector). ``norms``, ``absorbed_lefts``,
+    ``absorbed_rights``, ``reflections`` and ``transmissions`` are the same at
+    each snapshot. ``classical_position`` and
     ``classical_momentum`` follow a classical particle started at the packet's
     ``<x>`` and ``<p>`` in the same (real) potential; they are NaN once it has
     entered an absorbing layer.
@@ -50,6 +52,10 @@ class Run:
     momentum: np.ndarray
     energy: np.ndarray
     norms: np.ndarray
+    absorbed_lefts: np.ndarray
+    absorbed_rights: np.ndarray
+    reflections: np.ndarray | None
+    transmissions: np.ndarray | None
     classical_position: np.ndarray
     classical_momentum: np.ndarray
     x: np.ndarray
@@ -357,6 +363,10 @@ def propagate(
         momentum=seen["momentum"],
         energy=seen["energy"],
         norms=seen["norm"],
+        absorbed_lefts=seen["absorbed_left"],
+        absorbed_rights=seen["absorbed_right"],
+        reflections=None if bounds is None else seen["reflection"],
+        transmissions=None if bounds is None else seen["transmission"],
         classical_position=classical_position,
         classical_momentum=classical_momentum,
         x=system.grid.x,

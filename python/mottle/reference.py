@@ -163,8 +163,10 @@ class _Propagator:
             "momentum": self.hbar * float(np.sum(spectrum * k)) / in_spectrum,
             "energy": float(np.sum(spectrum * self.kinetic)) / in_spectrum
             + (float(np.sum(density * self.potential)) + interaction) / in_box,
-            "reflection": None,
-            "transmission": None,
+            "absorbed_left": self.absorbed_left,
+            "absorbed_right": self.absorbed_right,
+            "reflection": math.nan,
+            "transmission": math.nan,
         }
         if bounds is not None:
             left_end, right_start = bounds
@@ -352,13 +354,17 @@ def propagate(
         norm=last["norm"],
         absorbed_left=propagator.absorbed_left,
         absorbed_right=propagator.absorbed_right,
-        reflection=last["reflection"],
-        transmission=last["transmission"],
+        reflection=last["reflection"] if bounds is not None else None,
+        transmission=last["transmission"] if bounds is not None else None,
         position=column("position"),
         position_squared=column("position_squared"),
         momentum=column("momentum"),
         energy=column("energy"),
         norms=column("norm"),
+        absorbed_lefts=column("absorbed_left"),
+        absorbed_rights=column("absorbed_right"),
+        reflections=column("reflection") if bounds is not None else None,
+        transmissions=column("transmission") if bounds is not None else None,
         classical_position=classical_path[:, 0] if classical else None,
         classical_momentum=classical_path[:, 1] if classical else None,
         x=grid.x,
