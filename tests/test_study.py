@@ -88,6 +88,7 @@ def test_a_point_builds_the_system_packet_and_arguments_it_names():
         "realizations": 16,
         "seed": point.seed,
         "order": 2,
+        "splitting": None,
         "detector": None,
         "snapshots": (10.0, 20.0),
         "precision": "double",
@@ -330,3 +331,16 @@ def test_point_errors_outside_validation_name_the_key():
     with pytest.raises(mo.InvalidParameterError, match=r"^packet.width: packet width must be > 0"):
         bad.packet()
     assert math.isfinite(point.packet().width)
+
+
+def test_the_splitting_reaches_the_run():
+    # A study names the splitting; the point's run arguments carry it, and a bad name is refused.
+    text = BASE.replace(
+        "snapshots = [10.0, 20.0]", 'snapshots = [10.0, 20.0]\norder = 4\nsplitting = "yoshida"'
+    )
+    point = parse_study(text, "s.toml").points[0]
+    from mottle.study import run_arguments
+
+    assert run_arguments(point.resolved, point.seed)["splitting"] == "yoshida"
+    with pytest.raises(StudyError, match=r"run\.splitting"):
+        parse_study(text.replace('"yoshida"', '"leapfrog"'), "s.toml")

@@ -81,6 +81,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "seed": Key(INTEGER, default=0),
         "seeds": Key(STRING, default="per-point", choices=("per-point", "shared")),
         "order": Key(INTEGER, default=2),
+        "splitting": Key(STRING, choices=("strang", "yoshida", "blanes-moan")),
         "detector": Key(PAIR),
         "snapshots": Key(NUMBERS, default=[]),
         "precision": Key(STRING, default="double", choices=("double", "single")),

@@ -17,7 +17,8 @@ barrier {height, left, right}, harmonic {frequency, center}, tabulated
 white-noise {strength}, box {width}, gaussian {rms, correlation_length},
 speckle {strength, correlation_length, sign [1]}, each with start and stop.
 ``[packet]`` center, wavenumber, width. ``[run]`` duration, step,
-realizations, seed [0], seeds ["per-point"], order [2], detector [the
+realizations, seed [0], seeds ["per-point"], order [2], splitting ["strang" or
+"blanes-moan" by order; "yoshida" on request], detector [the
 disorder region, as in :func:`mottle.ensemble`], snapshots [none], precision
 ["double"].
 
@@ -155,6 +156,7 @@ def run_arguments(resolved: Mapping, seed: int) -> dict:
         "realizations": run["realizations"],
         "seed": seed,
         "order": run.get("order", 2),
+        "splitting": run.get("splitting"),
         "detector": detector_of(resolved),
         "snapshots": tuple(run.get("snapshots", ())),
         "precision": run.get("precision", "double"),
@@ -180,7 +182,7 @@ def _check_run(resolved: Mapping, system) -> None:
     if detector is None and system.disorder is not None:
         detector = (system.disorder.start, system.disorder.stop)
     _in(("run", "detector"), lambda: detector_bounds(system, detector))
-    _in(("run", "order"), lambda: resolve_splitting(run.get("order", 2), None))
+    _in(("run", "order"), lambda: resolve_splitting(run.get("order", 2), run.get("splitting")))
     _in(("run", "realizations"), lambda: _checks.integer("realizations", run["realizations"], minimum=1))
     _in(("run", "seed"), lambda: _checks.integer("seed", run.get("seed", 0), minimum=0))
 
