@@ -56,9 +56,7 @@ class Disorder:
                 f"{grid.dx:.4g}: use correlation_length >= {_MIN_POINTS_PER_CORRELATION * grid.dx:.4g} or "
                 f"at least {math.ceil(_MIN_POINTS_PER_CORRELATION * grid.length / ell)} points"
             )
-        if not any(self.start <= x < self.stop for x in (grid.x[0], grid.x[-1])) and not np.any(
-            (grid.x >= self.start) & (grid.x < self.stop)
-        ):
+        if not np.any((grid.x >= self.start) & (grid.x < self.stop)):
             raise InvalidParameterError(
                 f"{type(self).__name__} region [{self.start}, {self.stop}) holds no grid point"
             )
