@@ -135,6 +135,7 @@ def test_sums_of_models_add_independent_terms():
         (lambda: mo.Speckle(0.1, 0.3, 0.0, 10.0), "correlation_length 0.3 is not resolved"),
         (lambda: mo.BoxDisorder(1.0, -2000.0, 0.0), "must lie inside the box"),
         (lambda: mo.WhiteNoise(0.1, 0.0, 5000.0), "must lie inside the box"),
+        (lambda: mo.BoxDisorder(1.0, 0.05, 0.2), "holds no grid point"),
     ],
 )
 def test_unresolved_or_outside_disorder_is_refused(build, message):
