@@ -22,7 +22,7 @@ from . import _checks, _core
 from .errors import InvalidParameterError, InvalidTypeError
 from .grid import _memory_bytes
 from .packets import GaussianPacket
-from .propagate import Run, check_system, pauses_for, propagate, steps_for
+from .propagate import Run, check_detector, check_system, pauses_for, propagate, steps_for
 from .realize import realize
 from .statistics import Stat
 from .system import System
@@ -88,20 +88,6 @@ class ClassicalEnsemble:
         return float(np.mean(self.absorbed == 1))
 
 
-def _detector(detector) -> tuple[float, float] | None:
-    if detector is None:
-        return None
-    try:
-        left, right = detector
-    except (TypeError, ValueError):
-        raise InvalidTypeError(f"detector must be a pair (left, right), got {detector!r}") from None
-    left = _checks.real("detector left", left)
-    right = _checks.real("detector right", right)
-    if left > right:
-        raise InvalidParameterError(f"detector left={left} must be <= right={right}")
-    return left, right
-
-
 def classical_ensemble(
     system: System,
     packet: GaussianPacket,
@@ -149,7 +135,7 @@ def classical_ensemble(
     pauses = pauses_for(snapshots, step, steps)
     if detector is None and system.disorder is not None:
         detector = (system.disorder.start, system.disorder.stop)
-    detector = _detector(detector)
+    detector = check_detector(detector)
     grid, model = system.grid, system.model
     hbar = model.hbar
     left_end, right_start = system.layer_bounds()

@@ -119,8 +119,8 @@ def check_snapshot_memory(grid, count: int) -> None:
         )
 
 
-def detector_bounds(system: System, detector) -> tuple[int, int] | None:
-    """``(left_end, right_start)`` of ``detector=(left, right)``: points ``x < left`` and ``x > right``."""
+def check_detector(detector) -> tuple[float, float] | None:
+    """``detector=(left, right)`` validated: two finite numbers with ``left <= right`` (or None)."""
     if detector is None:
         return None
     try:
@@ -131,6 +131,15 @@ def detector_bounds(system: System, detector) -> tuple[int, int] | None:
     right = _checks.real("detector right", right)
     if left > right:
         raise InvalidParameterError(f"detector left={left} must be <= right={right}")
+    return left, right
+
+
+def detector_bounds(system: System, detector) -> tuple[int, int] | None:
+    """``(left_end, right_start)`` of ``detector=(left, right)``: points ``x < left`` and ``x > right``."""
+    detector = check_detector(detector)
+    if detector is None:
+        return None
+    left, right = detector
     x = system.grid.x
     return int(np.searchsorted(x, left, side="left")), int(np.searchsorted(x, right, side="right"))
 
