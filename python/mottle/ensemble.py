@@ -283,39 +283,26 @@ class Spectrum:
         )
 
 
+def _packet_band(packet, grid) -> tuple[float, float]:
+    """The wavenumbers one packet carries: k0 +- 3.5 sigma_k, or where |phi(k)|**2 > 1e-3 of its peak."""
+    if isinstance(packet, GaussianPacket):
+        reach = 3.5 * packet.wavenumber_spread
+        return packet.wavenumber - reach, packet.wavenumber + reach
+    weight = np.abs(np.fft.fft(packet.values(grid))) ** 2
+    strong = grid.k[weight >= 1e-3 * weight.max()]
+    return float(strong.min()), float(strong.max())
+
+
 def _band_modes(system: System, packet) -> np.ndarray:
     """FFT indices of the right-moving grid wavenumbers in the packet's band."""
     grid, model = system.grid, system.model
-    if isinstance(packet, GaussianPacket):
-        intervals = [
-            (
-                packet.wavenumber - 3.5 * packet.wavenumber_spread,
-                packet.wavenumber + 3.5 * packet.wavenumber_spread,
-            )
-        ]
-    elif isinstance(packet, RandomPacket):
-        corners = packet.corners()
-        intervals = [
-            (
-                min(p.wavenumber - 3.5 * p.wavenumber_spread for p in corners),
-                max(p.wavenumber + 3.5 * p.wavenumber_spread for p in corners),
-            )
-        ]
+    if isinstance(packet, RandomPacket):
+        # Draws fill the whole range between the extreme packets.
+        corners = [_packet_band(corner, grid) for corner in packet.corners()]
+        intervals = [(min(low for low, _ in corners), max(high for _, high in corners))]
     else:
         entries = packet.packets if isinstance(packet, PacketList) else (packet,)
-        intervals = []
-        for entry in entries:
-            if isinstance(entry, GaussianPacket):
-                intervals.append(
-                    (
-                        entry.wavenumber - 3.5 * entry.wavenumber_spread,
-                        entry.wavenumber + 3.5 * entry.wavenumber_spread,
-                    )
-                )
-            else:
-                weight = np.abs(np.fft.fft(entry.values(grid))) ** 2
-                strong = grid.k[weight >= 1e-3 * weight.max()]
-                intervals.append((float(strong.min()), float(strong.max())))
+        intervals = [_packet_band(entry, grid) for entry in entries]
     k = np.asarray(grid.k)
     inside = np.zeros(k.size, dtype=bool)
     for low, high in intervals:
@@ -417,7 +404,6 @@ def _spectrum_config(system: System, packet, bounds, step: float, duration: floa
 class _Plan:
     """Everything a call to the core needs, validated once."""
 
-    system: System
     setup: dict
     run: dict
     kinetic: np.ndarray
@@ -480,7 +466,6 @@ def plan(
     k = np.asarray(system.grid.k)
     modes_info = (np.zeros(0), np.zeros(0)) if spectrum is None else (k[spectrum[2]], np.asarray(spectrum[4]))
     return _Plan(
-        system=system,
         setup=setup_config(system, step, splitting),
         run={
             "steps": steps,

@@ -100,12 +100,7 @@ pub fn run_chunks<T: Real>(
     validate_pauses(&spec.pauses, spec.steps)?;
     spec.packets.validate(setup.points)?;
     if let Some(detector) = spec.detector {
-        if detector.left_end > detector.right_start || detector.right_start > setup.points {
-            return invalid(format!(
-                "detector {detector:?} does not fit the grid of {} points",
-                setup.points
-            ));
-        }
+        detector.validate(setup.points)?;
     }
     if let Some(spectrum) = &spec.spectrum {
         let n = setup.points;

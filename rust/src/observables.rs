@@ -6,6 +6,7 @@
 
 use num_complex::Complex;
 
+use crate::error::{invalid, CoreError};
 use crate::real::{density, Real};
 use crate::stepper::{Absorbed, Stepper};
 
@@ -15,6 +16,17 @@ use crate::stepper::{Absorbed, Stepper};
 pub struct Detector {
     pub left_end: usize,
     pub right_start: usize,
+}
+
+impl Detector {
+    pub fn validate(&self, points: usize) -> Result<(), CoreError> {
+        if self.left_end > self.right_start || self.right_start > points {
+            return invalid(format!(
+                "detector {self:?} does not fit the grid of {points} points"
+            ));
+        }
+        Ok(())
+    }
 }
 
 /// What is measured at a pause of a run.

@@ -74,11 +74,7 @@ pub fn propagate<T: Real>(
     }
     validate_pauses(&request.pauses, request.steps)?;
     if let Some(detector) = request.detector {
-        if detector.left_end > detector.right_start || detector.right_start > n {
-            return invalid(format!(
-                "detector {detector:?} does not fit the grid of {n} points"
-            ));
-        }
+        detector.validate(n)?;
     }
     let mut stepper = Stepper::new(shared);
     stepper.prepare(&request.potential)?;

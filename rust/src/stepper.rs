@@ -194,10 +194,6 @@ impl<'a, T: Real> Stepper<'a, T> {
         }
     }
 
-    pub fn setup(&self) -> &Setup {
-        &self.shared.setup
-    }
-
     /// The shared tables, borrowed for as long as the stepper's own borrow.
     pub fn shared(&self) -> &'a Shared<T> {
         self.shared

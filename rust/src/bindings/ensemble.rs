@@ -1,13 +1,12 @@
 //! Bindings for disorder realizations and ensembles.
 
 use num_complex::Complex64;
-use numpy::ndarray::Array2;
 use numpy::{IntoPyArray, PyReadonlyArray1, PyReadonlyArray2};
 use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList};
 
-use super::{build_setup, run_detached, to_pyerr, SetupConfig};
-use crate::disorder::{Kind, Line, Realizer, Term};
+use super::{build_setup, in_pool, run_detached, table, to_pyerr, LineConfig, SetupConfig};
+use crate::disorder::{Kind, Realizer, Term};
 use crate::ensemble::{run_chunks, Chunk, Spec, CHUNK, DENSITY_FLOOR};
 use crate::error::CoreError;
 use crate::observables::Detector;
@@ -64,15 +63,6 @@ pub(crate) fn terms(configs: &[TermConfig]) -> Result<Vec<Term>, CoreError> {
     configs.iter().map(TermConfig::term).collect()
 }
 
-/// The grid line a realization lives on.
-#[derive(FromPyObject)]
-#[pyo3(from_item_all)]
-pub(crate) struct LineConfig {
-    pub(crate) points: usize,
-    pub(crate) dx: f64,
-    pub(crate) start: f64,
-}
-
 /// Realization `index` of `seed`: the disorder terms added to `base`.
 #[pyfunction]
 fn realize<'py>(
@@ -84,11 +74,7 @@ fn realize<'py>(
     index: u64,
 ) -> PyResult<Bound<'py, numpy::PyArray1<f64>>> {
     let mut potential = base.as_array().to_vec();
-    let grid = Line {
-        points: line.points,
-        dx: line.dx,
-        start: line.start,
-    };
+    let grid = line.line();
     let result = terms(&disorder).and_then(|terms| {
         let mut realizer = Realizer::new(grid, &terms)?;
         realizer.add_to(seed, index, &mut potential)
@@ -199,13 +185,9 @@ fn run_in<T: Real>(
     cancel: &std::sync::atomic::AtomicBool,
 ) -> Result<Vec<Chunk>, CoreError> {
     let shared = Shared::<T>::new(setup)?;
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(config.threads)
-        .build()
-        .map_err(|error| {
-            CoreError::Internal(format!("cannot start {} threads: {error}", config.threads))
-        })?;
-    pool.install(|| run_chunks(&shared, spec, config.start, config.count, cancel))
+    in_pool(config.threads, || {
+        run_chunks(&shared, spec, config.start, config.count, cancel)
+    })
 }
 
 fn chunk_dict<'py>(
@@ -248,9 +230,7 @@ fn chunk_dict<'py>(
         ("momentum", chunk.momentum, snapshots, points),
         ("spectrum", chunk.spectrum, chunk.count, modes),
     ] {
-        let array = Array2::from_shape_vec((rows, columns), values)
-            .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
-        dict.set_item(name, array.into_pyarray(py))?;
+        dict.set_item(name, table(py, values, rows, columns)?)?;
     }
     Ok(dict)
 }

@@ -1,16 +1,15 @@
 //! Bindings for transfer matrices (Lyapunov exponents, stationary
 //! transmission) and classical particle ensembles.
 
-use numpy::ndarray::Array2;
-use numpy::{IntoPyArray, PyArray1, PyArray2, PyReadonlyArray1};
+use numpy::{PyArray1, PyArray2, PyReadonlyArray1};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 
-use super::ensemble::{terms, LineConfig, TermConfig};
-use super::{run_detached, to_pyerr};
+use super::ensemble::{terms, TermConfig};
+use super::{in_pool, run_detached, table, to_pyerr, LineConfig};
 use crate::classical::{Kinetic, Landscape};
 use crate::classical_ensemble::{run_particles, ClassicalSpec};
-use crate::disorder::Line;
+use crate::disorder::Term;
 use crate::error::CoreError;
 use crate::localization::{log_transmissions, lyapunov_exponents, Sample};
 use crate::transfer::Medium;
@@ -72,37 +71,14 @@ struct RealizationsConfig {
     threads: usize,
 }
 
-fn in_pool<R: Send>(
-    threads: usize,
-    work: impl FnOnce() -> Result<R, CoreError> + Send,
-) -> Result<R, CoreError> {
-    if threads == 0 {
-        return Err(CoreError::InvalidInput("threads must be >= 1".into()));
-    }
-    rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .map_err(|error| CoreError::Internal(format!("cannot start {threads} threads: {error}")))?
-        .install(work)
-}
-
-fn grid_line(line: &LineConfig) -> Line {
-    Line {
-        points: line.points,
-        dx: line.dx,
-        start: line.start,
-    }
-}
-
-fn table<'py>(
-    py: Python<'py>,
-    values: Vec<f64>,
-    rows: usize,
-    columns: usize,
-) -> PyResult<Bound<'py, PyArray2<f64>>> {
-    let array = Array2::from_shape_vec((rows, columns), values)
-        .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
-    Ok(array.into_pyarray(py))
+/// The disorder terms and the wave equation, validated.
+fn inputs(
+    py: Python<'_>,
+    disorder: &[TermConfig],
+    medium: &MediumConfig,
+) -> PyResult<(Vec<Term>, Medium)> {
+    let prepared = (|| Ok::<_, CoreError>((terms(disorder)?, medium.medium()?)))();
+    prepared.map_err(|error| to_pyerr(py, error))
 }
 
 /// Lyapunov exponents (per unit length) over points `region` of each
@@ -121,10 +97,9 @@ fn lyapunov_exponents_of<'py>(
 ) -> PyResult<Bound<'py, PyArray2<f64>>> {
     // A copy: another Python thread could write the buffer while we run detached.
     let statics = static_potential.as_array().to_vec();
-    let prepared = (|| Ok::<_, CoreError>((terms(&disorder)?, medium.medium()?)))();
-    let (terms, medium) = prepared.map_err(|error| to_pyerr(py, error))?;
+    let (terms, medium) = inputs(py, &disorder, &medium)?;
     let sample = Sample {
-        line: grid_line(&line),
+        line: line.line(),
         static_potential: &statics,
         disorder: &terms,
         seed: realizations.seed,
@@ -158,10 +133,9 @@ fn log_transmissions_of<'py>(
     realizations: RealizationsConfig,
 ) -> PyResult<Bound<'py, PyArray2<f64>>> {
     let statics = static_potential.as_array().to_vec();
-    let prepared = (|| Ok::<_, CoreError>((terms(&disorder)?, medium.medium()?)))();
-    let (terms, medium) = prepared.map_err(|error| to_pyerr(py, error))?;
+    let (terms, medium) = inputs(py, &disorder, &medium)?;
     let sample = Sample {
-        line: grid_line(&line),
+        line: line.line(),
         static_potential: &statics,
         disorder: &terms,
         seed: realizations.seed,
@@ -246,9 +220,10 @@ fn classical_particles<'py>(
     dict.set_item("position", PyArray1::from_vec(py, positions))?;
     dict.set_item("momentum", PyArray1::from_vec(py, momenta))?;
     dict.set_item("absorbed", PyArray1::from_vec(py, absorbed))?;
-    let counts = Array2::from_shape_vec((spec.pauses.len(), points), output.counts)
-        .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
-    dict.set_item("counts", counts.into_pyarray(py))?;
+    dict.set_item(
+        "counts",
+        table(py, output.counts, spec.pauses.len(), points)?,
+    )?;
     dict.set_item("substeps", output.substeps)?;
     Ok(dict)
 }

@@ -28,14 +28,6 @@ const SIGNAL_POLL: Duration = Duration::from_millis(20);
 
 /// `CoreError` as a Python exception: input errors become mottle's
 /// `InvalidParameterError` (a `ValueError`), interruption `KeyboardInterrupt`.
-struct BindingError(CoreError);
-
-impl From<CoreError> for BindingError {
-    fn from(error: CoreError) -> Self {
-        BindingError(error)
-    }
-}
-
 pub(crate) fn to_pyerr(py: Python<'_>, error: CoreError) -> PyErr {
     let class_name = match &error {
         CoreError::InvalidInput(_) => "InvalidParameterError",
@@ -51,12 +43,6 @@ pub(crate) fn to_pyerr(py: Python<'_>, error: CoreError) -> PyErr {
             error.to_string(),
         ),
         Err(import_error) => import_error,
-    }
-}
-
-impl BindingError {
-    fn into_pyerr(self, py: Python<'_>) -> PyErr {
-        to_pyerr(py, self.0)
     }
 }
 
@@ -100,7 +86,7 @@ where
         Ok(Ok(result)) => result,
         Ok(Err(panic)) | Err(panic) => Err(CoreError::Internal(panic_message(&panic))),
     };
-    result.map_err(|error| BindingError(error).into_pyerr(py))
+    result.map_err(|error| to_pyerr(py, error))
 }
 
 fn panic_message(panic: &Box<dyn std::any::Any + Send>) -> String {
@@ -109,6 +95,53 @@ fn panic_message(panic: &Box<dyn std::any::Any + Send>) -> String {
         .map(|s| s.to_string())
         .or_else(|| panic.downcast_ref::<String>().cloned())
         .unwrap_or_else(|| "a worker panicked".to_string())
+}
+
+/// Run `work` on a rayon pool of `threads` threads (sized per call: the
+/// caller, e.g. a Dask task, knows how many cores it may use).
+pub(crate) fn in_pool<R: Send>(
+    threads: usize,
+    work: impl FnOnce() -> Result<R, CoreError> + Send,
+) -> Result<R, CoreError> {
+    if threads == 0 {
+        return Err(CoreError::InvalidInput("threads must be >= 1".into()));
+    }
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|error| CoreError::Internal(format!("cannot start {threads} threads: {error}")))?
+        .install(work)
+}
+
+/// A row-major buffer as a 2-D numpy array, without a copy.
+pub(crate) fn table<'py, T: numpy::Element>(
+    py: Python<'py>,
+    values: Vec<T>,
+    rows: usize,
+    columns: usize,
+) -> PyResult<Bound<'py, numpy::PyArray2<T>>> {
+    let array = Array2::from_shape_vec((rows, columns), values)
+        .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
+    Ok(array.into_pyarray(py))
+}
+
+/// The grid line a realization lives on, read from `{"points", "dx", "start"}`.
+#[derive(FromPyObject)]
+#[pyo3(from_item_all)]
+pub(crate) struct LineConfig {
+    points: usize,
+    dx: f64,
+    start: f64,
+}
+
+impl LineConfig {
+    pub(crate) fn line(&self) -> crate::disorder::Line {
+        crate::disorder::Line {
+            points: self.points,
+            dx: self.dx,
+            start: self.start,
+        }
+    }
 }
 
 /// The scalar part of a run's configuration, read from a dict.
@@ -266,9 +299,7 @@ fn propagate_one<'py>(
     dict.set_item("psi", output.psi.into_pyarray(py))?;
     let snapshot_count = output.snapshots.len();
     let flat: Vec<Complex64> = output.snapshots.into_iter().flatten().collect();
-    let snapshots = Array2::from_shape_vec((snapshot_count, points), flat)
-        .map_err(|error| to_pyerr(py, CoreError::Internal(error.to_string())))?;
-    dict.set_item("snapshots", snapshots.into_pyarray(py))?;
+    dict.set_item("snapshots", table(py, flat, snapshot_count, points)?)?;
     dict.set_item("observations", observations_dict(py, &output.observations)?)?;
     dict.set_item(
         "last",
