@@ -361,7 +361,9 @@ def _spectrum_config(system: System, packet, bounds, step: float, duration: floa
     edge = max(bounds[1], int(nonzero[-1]) + 1 if nonzero.size else 0)
     if system.disorder is not None:
         edge = max(edge, int(np.searchsorted(system.grid.x, system.disorder.stop, side="left")))
-    if edge >= right_start or edge > bounds[1] + max(2, (right_start - bounds[1]) // 8):
+    # A cell-averaged edge spills into at most the next point; potential farther right
+    # would make the spectrum describe a different sample than the detector counts.
+    if edge >= right_start or edge > bounds[1] + 2:
         if wanted:
             raise InvalidParameterError(
                 "spectrum=True needs a free right side: no potential or disorder between the detector's "
