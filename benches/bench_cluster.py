@@ -16,7 +16,7 @@ import pytest
 
 import mottle as mo
 from conftest import TIMINGS, figure, record
-from mottle.study import parse_study
+from mottle.studies.study import parse_study
 
 STUDY = """\
 [system]

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from mottle.exact import (
+from mottle.analysis.exact import (
     barrier_transmission,
     coherent_state_center,
     delta_transmission,

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.exact import barrier_transmission, delta_transmission, packet_average
+from mottle.analysis.exact import barrier_transmission, delta_transmission, packet_average
 
 pytestmark = pytest.mark.filterwarnings("error::mottle.UnderResolvedWarning")
 

@@ -214,7 +214,7 @@ def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, in_p
 def test_report_draws_the_stored_numbers(workspace, in_process):
     import matplotlib.image
 
-    from mottle import report
+    from mottle.cli import report
 
     path = in_process[0]
     out = workspace / "figures"
@@ -350,7 +350,8 @@ def test_check_passes_and_prints_value_reference_tolerance_and_source():
 
 
 def test_check_fails_on_a_failing_case(monkeypatch, capsys):
-    from mottle import check, cli
+    from mottle import cli
+    from mottle.cli import check
 
     cases = dict(check._REGISTRY)
     cases["always-off"] = check.Case(
@@ -379,7 +380,7 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     figures = tmp_path / "demo" / "figures"
     assert (figures / "log_transmission_vs_length.png").stat().st_size > 10000
     # Stronger speckle localizes more: the fitted xi falls with the strength.
-    from mottle.report import localization_fits
+    from mottle.cli.report import localization_fits
 
     xi = [fit.xi for fit in localization_fits(store)]
     assert len(xi) == 3 and xi[0] > xi[1] > xi[2] > 0

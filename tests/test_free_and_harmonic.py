@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.exact import coherent_state_center, free_gaussian_width, leapfrog_center
+from mottle.analysis.exact import coherent_state_center, free_gaussian_width, leapfrog_center
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.exact import soliton
+from mottle.analysis.exact import soliton
 
 PROPAGATORS = pytest.mark.parametrize(
     "propagate", [mo.reference.propagate, mo.propagate], ids=["reference", "core"]

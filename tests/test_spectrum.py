@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.exact import barrier_transmission as exact_barrier
+from mottle.analysis.exact import barrier_transmission as exact_barrier
 
 
 def test_a_broadband_packet_gives_the_barrier_transmission_across_its_band():

@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.store import Finished, StoreError, StoreWriter
-from mottle.study import parse_study
+from mottle.studies.store import Finished, StoreError, StoreWriter
+from mottle.studies.study import parse_study
 
 STUDY = """\
 [system]
@@ -167,8 +167,8 @@ def test_foreign_empty_and_truncated_files_are_refused_untouched(tmp_path, study
 
 HOLDER = """
 import sys, time
-from mottle.study import parse_study
-from mottle.store import StoreWriter
+from mottle.studies.study import parse_study
+from mottle.studies.store import StoreWriter
 study = parse_study(open(sys.argv[2]).read(), "store.toml")
 with StoreWriter(sys.argv[1], study):
     print("holding", flush=True)
@@ -200,8 +200,8 @@ def test_a_second_writer_is_refused_until_the_first_dies(tmp_path, study):
 KILLED = """
 import sys
 import mottle as mo
-from mottle.study import parse_study
-from mottle.store import Finished, StoreWriter
+from mottle.studies.study import parse_study
+from mottle.studies.store import Finished, StoreWriter
 study = parse_study(open(sys.argv[2]).read(), "kill.toml")
 system, packet, arguments = study.points[0].build()
 result = mo.ensemble(system, packet, **arguments)

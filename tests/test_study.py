@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.study import StudyError, differences, parse_study, point_seed
+from mottle.studies.study import StudyError, differences, parse_study, point_seed
 
 BASE = """\
 [study]
@@ -339,7 +339,7 @@ def test_the_splitting_reaches_the_run():
         "snapshots = [10.0, 20.0]", 'snapshots = [10.0, 20.0]\norder = 4\nsplitting = "yoshida"'
     )
     point = parse_study(text, "s.toml").points[0]
-    from mottle.study import run_arguments
+    from mottle.studies.study import run_arguments
 
     assert run_arguments(point.resolved, point.seed)["splitting"] == "yoshida"
     with pytest.raises(StudyError, match=r"run\.splitting"):

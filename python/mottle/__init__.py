@@ -1,25 +1,44 @@
 """mottle: many-run split-step Fourier propagation for wave transport in disorder."""
 
-from . import reference
-from .absorber import Absorber
-from .classical import ClassicalEnsemble, QuantumClassical, classical_ensemble, quantum_classical
-from .disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
-from .ensemble import CHUNK, EnsemblePartial, EnsembleResult, ensemble, ensemble_partial, merge_partials
+from .analysis.fits import (
+    LocalizationFit,
+    TailFit,
+    bootstrap_interval,
+    fit_log_transmission,
+    log_density_tails,
+)
+from .analysis.momentum import MomentumPeaks, coherent_peaks
+from .analysis.statistics import Stat
+from .dynamics import reference
+from .dynamics.classical import ClassicalEnsemble, QuantumClassical, classical_ensemble, quantum_classical
+from .dynamics.ensemble import (
+    CHUNK,
+    EnsemblePartial,
+    EnsembleResult,
+    ensemble,
+    ensemble_partial,
+    merge_partials,
+)
+from .dynamics.propagate import Run, propagate
+from .dynamics.realize import realize
 from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
-from .fits import LocalizationFit, TailFit, bootstrap_interval, fit_log_transmission, log_density_tails
-from .grid import Grid
-from .localization import Lyapunov, TransmissionSpectrum, born_lyapunov, lyapunov, transmission_spectrum
-from .models import Continuum, Lattice
-from .momentum import MomentumPeaks, coherent_peaks
-from .packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
-from .potentials import Barrier, Harmonic, Tabulated
-from .propagate import Run, propagate
-from .realize import realize
-from .runner import StudyInterrupted, run_study
-from .statistics import Stat
-from .store import Store, StoreError, open_store
-from .study import Study, StudyError, StudyPoint, load_study
-from .system import System
+from .specs.absorber import Absorber
+from .specs.disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
+from .specs.grid import Grid
+from .specs.models import Continuum, Lattice
+from .specs.packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
+from .specs.potentials import Barrier, Harmonic, Tabulated
+from .specs.system import System
+from .stationary.localization import (
+    Lyapunov,
+    TransmissionSpectrum,
+    born_lyapunov,
+    lyapunov,
+    transmission_spectrum,
+)
+from .studies.runner import StudyInterrupted, run_study
+from .studies.store import Store, StoreError, open_store
+from .studies.study import Study, StudyError, StudyPoint, load_study
 
 __version__ = "0.1.0"
 

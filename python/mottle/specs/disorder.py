@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError
+from .. import _checks
+from ..errors import InvalidParameterError
 from .grid import Grid
 
 # A correlated model needs this many grid spacings per correlation length.

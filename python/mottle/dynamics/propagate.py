@@ -9,10 +9,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks, _core
-from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
-from .packets import GaussianPacket, Wavefunction
-from .system import System
+from .. import _checks, _core
+from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
+from ..specs.packets import GaussianPacket, Wavefunction
+from ..specs.system import System
 
 SPLITTINGS = {"strang": 2, "yoshida": 4, "blanes-moan": 4}
 # The 4th-order splitting `order=4` selects: Blanes-Moan needs twice the FFTs
@@ -108,7 +108,7 @@ def pauses_for(snapshots, step: float, steps: int) -> list[int]:
 
 def check_snapshot_memory(grid, count: int) -> None:
     """Refuse, before the run, snapshots that could not be kept in memory (two copies at the hand-over)."""
-    from .grid import _memory_bytes
+    from ..specs.grid import _memory_bytes
 
     need = 2 * 16 * count * grid.points
     have = _memory_bytes()

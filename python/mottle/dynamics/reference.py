@@ -39,10 +39,10 @@ import math
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError
+from .. import _checks
+from ..errors import InvalidParameterError
+from ..specs.system import System
 from .propagate import Run, check_system, initial_phase_space, prepare_single_run
-from .system import System
 
 
 def _strang() -> tuple[list[float], list[float]]:

@@ -28,13 +28,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks, _core
-from .ensemble import default_threads
-from .errors import InvalidParameterError, InvalidTypeError
-from .grid import _memory_bytes
-from .models import Lattice
-from .statistics import Stat
-from .system import System
+from .. import _checks, _core
+from ..analysis.statistics import Stat
+from ..dynamics.ensemble import default_threads
+from ..errors import InvalidParameterError, InvalidTypeError
+from ..specs.grid import _memory_bytes
+from ..specs.models import Lattice
+from ..specs.system import System
 
 
 def _threads(threads) -> int:
@@ -147,7 +147,7 @@ class Lyapunov:
         """Bootstrap interval over realizations (``scipy.stats.bootstrap``, BCa) of
         ``<gamma>`` (``of="lyapunov"``) or of ``xi = 1/<gamma>`` (``of="localization_length"``);
         ``options`` go to :func:`mottle.bootstrap_interval`."""
-        from .fits import bootstrap_interval
+        from ..analysis.fits import bootstrap_interval
 
         _checks.choice("of", of, ("lyapunov", "localization_length"))
         if of == "lyapunov":

@@ -12,8 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError, InvalidTypeError
+from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError
 from .grid import Grid
 from .models import Continuum, Lattice
 

@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError, InvalidTypeError
+from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError
 
 
 @dataclass(frozen=True)

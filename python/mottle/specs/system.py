@@ -6,10 +6,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
+from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
 from .disorder import Disorder
-from .errors import InvalidParameterError, InvalidTypeError
 from .grid import Grid
 from .models import Continuum, Lattice
 from .potentials import Potential

@@ -16,9 +16,11 @@ from dataclasses import dataclass, field, fields
 
 import numpy as np
 
-from . import _checks, _core
-from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
-from .packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
+from .. import _checks, _core
+from ..analysis.statistics import Stat
+from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
+from ..specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
+from ..specs.system import System
 from .propagate import (
     check_system,
     detector_bounds,
@@ -29,8 +31,6 @@ from .propagate import (
     warn_if_coarse,
 )
 from .realize import realize
-from .statistics import Stat
-from .system import System
 
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""

@@ -8,8 +8,8 @@ from functools import cached_property
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError
+from .. import _checks
+from ..errors import InvalidParameterError
 
 # A run holds about a dozen complex buffers of the grid's size (state, scratch,
 # phase tables, snapshots in flight); refuse grids that could not fit.

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
+from .. import _checks
 from .grid import Grid
 
 _C = 2.62206

@@ -51,7 +51,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import MottleError
+from ..errors import MottleError
 from .study import Study, differences, short_names
 
 FORMAT = "mottle-results-store"
@@ -81,7 +81,7 @@ def _h5open(path, mode: str):
 
 
 def _version() -> str:
-    from . import __version__
+    from .. import __version__
 
     return __version__
 
@@ -180,7 +180,7 @@ class StoredPoint:
     def result(self):
         """The point's :class:`~mottle.EnsembleResult`, read on first use."""
         if self._result is None:
-            from .ensemble import EnsembleResult
+            from ..dynamics.ensemble import EnsembleResult
 
             with _open_checked(self.path) as handle:
                 arrays = _read_arrays(handle[f"points/{self.index:06d}/result"])

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import _checks, _core
-from .system import System
+from .. import _checks, _core
+from ..specs.system import System
 
 
 def realize(system: System, seed: int = 0, index: int = 0) -> np.ndarray:

@@ -13,8 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
+from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from .statistics import Stat
 
 # Below exp(-64) of its peak a split-step density is rounding noise in double

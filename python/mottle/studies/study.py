@@ -46,7 +46,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._study_schema import (
+from ..errors import InvalidParameterError, InvalidTypeError
+from .schema import (
     ARRAYS,
     METADATA_SECTIONS,
     StudyError,
@@ -57,7 +58,6 @@ from ._study_schema import (
     _required,
     _sweep_values,
 )
-from .errors import InvalidParameterError, InvalidTypeError
 
 # --------------------------------------------------------------------------- points
 
@@ -81,12 +81,12 @@ def point_seed(seed: int, parameters: Mapping[str, object]) -> int:
 
 def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
     """The :class:`~mottle.System` of a resolved parameter set (raises the spec classes' own errors)."""
-    from .absorber import Absorber
-    from .disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
-    from .grid import Grid
-    from .models import Continuum, Lattice
-    from .potentials import Barrier, Harmonic, Tabulated
-    from .system import System
+    from ..specs.absorber import Absorber
+    from ..specs.disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
+    from ..specs.grid import Grid
+    from ..specs.models import Continuum, Lattice
+    from ..specs.potentials import Barrier, Harmonic, Tabulated
+    from ..specs.system import System
 
     system = resolved["system"]
     grid = _in(("system",), lambda: Grid(system["points"], system["length"], system.get("center", 0.0)))
@@ -138,7 +138,7 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
 
 def build_packet(resolved: Mapping, system=None):
     """The :class:`~mottle.GaussianPacket` of a resolved parameter set, checked against the grid if given."""
-    from .packets import GaussianPacket
+    from ..specs.packets import GaussianPacket
 
     spec = resolved["packet"]
     packet = _in(("packet",), lambda: GaussianPacket(spec["center"], spec["wavenumber"], spec["width"]), spec)
@@ -170,8 +170,8 @@ def detector_of(resolved: Mapping) -> tuple[float, float] | None:
 
 
 def _check_run(resolved: Mapping, system) -> None:
-    from . import _checks
-    from .propagate import detector_bounds, pauses_for, resolve_splitting, steps_for
+    from .. import _checks
+    from ..dynamics.propagate import detector_bounds, pauses_for, resolve_splitting, steps_for
 
     run = resolved["run"]
     duration = _in(("run", "duration"), lambda: _checks.positive("duration", run["duration"]))

@@ -18,14 +18,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks, _core
-from .errors import InvalidParameterError, InvalidTypeError
-from .grid import _memory_bytes
-from .packets import GaussianPacket
+from .. import _checks, _core
+from ..analysis.statistics import Stat
+from ..errors import InvalidParameterError, InvalidTypeError
+from ..specs.grid import _memory_bytes
+from ..specs.packets import GaussianPacket
+from ..specs.system import System
 from .propagate import Run, check_detector, check_system, pauses_for, propagate, steps_for
 from .realize import realize
-from .statistics import Stat
-from .system import System
 
 # Bytes per particle: the core's phase-space points (24) and the arrays returned (17).
 _BYTES_PER_PARTICLE = 41
@@ -109,7 +109,7 @@ def classical_ensemble(
     :func:`mottle.propagate` (``detector`` defaults to the disorder region, as
     in :func:`mottle.ensemble`). The GIL is released and Ctrl-C stops the run.
     """
-    from .localization import _threads
+    from ..stationary.localization import _threads
 
     check_system(system)
     if not isinstance(packet, GaussianPacket):

@@ -8,8 +8,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
-from .errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
+from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from .grid import Grid
 
 # Beyond this many standard deviations a Gaussian is below rounding for our purposes.
@@ -216,7 +216,7 @@ class RandomPacket:
 
     def packet(self, seed: int, index: int) -> GaussianPacket:
         """The packet of realization ``index`` of ``seed``."""
-        from . import _core
+        from .. import _core
 
         center, wavenumber, width = _core.draw_packet(self.config(None), seed, index)
         return GaussianPacket(center, wavenumber, width)

@@ -31,7 +31,7 @@ import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
 
-from .errors import InvalidParameterError, MottleError
+from ..errors import InvalidParameterError, MottleError
 from .study import StudyPoint, build_packet, build_system, run_arguments
 
 # A worker killed while running a task makes every task on it "suspicious"; Dask gives up on
@@ -54,7 +54,7 @@ class TaskOutput:
 
 def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, count: int, threads):
     """Realizations ``[start, start + count)`` of the point ``resolved`` (runs on a worker)."""
-    from .ensemble import ensemble_partial
+    from ..dynamics.ensemble import ensemble_partial
 
     began, clock = time.time(), time.perf_counter()
     if threads is None:
@@ -72,7 +72,7 @@ def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, co
 
 def _worker_threads() -> int:
     """This worker's cores shared among the tasks it runs at once (its Dask threads)."""
-    from .ensemble import default_threads
+    from ..dynamics.ensemble import default_threads
 
     try:
         from distributed import get_worker
@@ -96,7 +96,7 @@ def _distributed():
 
 def task_size(points: list[StudyPoint], slots: int, threads_per_task: int) -> int:
     """Realizations per task: a multiple of CHUNK, at least one chunk per thread of the task."""
-    from .ensemble import CHUNK
+    from ..dynamics.ensemble import CHUNK
 
     chunks = sum(math.ceil(point.realizations / CHUNK) for point in points)
     per_task = max(threads_per_task, math.ceil(chunks / (TASKS_PER_WORKER * max(slots, 1))))
@@ -129,7 +129,7 @@ def connect(workers: int | None = None, scheduler=None, threads: int | None = No
             return
         if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
             raise InvalidParameterError(f"workers must be an integer >= 1, got {workers!r}")
-        from .ensemble import default_threads
+        from ..dynamics.ensemble import default_threads
 
         per_task = threads or max(1, default_threads() // workers)
         import logging
@@ -170,7 +170,7 @@ def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advanc
     """
     from distributed import KilledWorker, as_completed
 
-    from .ensemble import merge_partials, plan
+    from ..dynamics.ensemble import merge_partials, plan
 
     layout = client.nthreads()
     # Task slots: a worker runs as many tasks at once as it has Dask threads.

@@ -69,10 +69,10 @@ class DemoOutcome:
 
 def born_xi(strength: float, correlation_length: float, wavenumber: float) -> float:
     """Born localization length (amplitude) of the demo's speckle, ``1 / mottle.born_lyapunov``."""
-    from .disorder import Speckle
-    from .grid import Grid
-    from .localization import born_lyapunov
-    from .system import System
+    from ..specs.disorder import Speckle
+    from ..specs.grid import Grid
+    from ..specs.system import System
+    from ..stationary.localization import born_lyapunov
 
     system = System(Grid(1024, 240.0, center=10.0), disorder=Speckle(strength, correlation_length, 0.0, 40.0))
     gamma = float(born_lyapunov(system, 0.5 * wavenumber**2))
@@ -85,13 +85,13 @@ def barrier_warm_up() -> list[str]:
     A packet of mean energy 0.72 meets a barrier of height 0.8 and width 1.5 (hbar = m = 1):
     classically it would bounce back; quantum mechanically about 47 % tunnels.
     """
-    from .absorber import Absorber
-    from .exact import barrier_transmission, packet_average
-    from .grid import Grid
-    from .packets import GaussianPacket
-    from .potentials import Barrier
-    from .propagate import propagate
-    from .system import System
+    from ..analysis.exact import barrier_transmission, packet_average
+    from ..dynamics.propagate import propagate
+    from ..specs.absorber import Absorber
+    from ..specs.grid import Grid
+    from ..specs.packets import GaussianPacket
+    from ..specs.potentials import Barrier
+    from ..specs.system import System
 
     # dx = 0.05 keeps the sharp barrier's discretization error near 1e-4.
     system = System(Grid(8192, 400.0), potential=Barrier(0.8, 0.0, 1.5), absorber=Absorber(60.0))
@@ -118,9 +118,9 @@ def run_demo(
     out: str | Path = "mottle-demo", workers=None, threads=None, progress: bool = True
 ) -> DemoOutcome:
     """Write the demo study to ``out``, run it into ``out/demo.h5`` (resuming), draw ``out/figures``."""
+    from ..studies.runner import run_study
+    from ..studies.study import load_study
     from .report import report
-    from .runner import run_study
-    from .study import load_study
 
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)

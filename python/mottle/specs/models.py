@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _checks
+from .. import _checks
 
 
 @dataclass(frozen=True)

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InvalidParameterError
+from ..errors import InvalidParameterError
 
 NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE = (
     "a number",

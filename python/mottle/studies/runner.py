@@ -8,7 +8,7 @@ import socket
 import sys
 import time
 
-from .errors import MottleError
+from ..errors import MottleError
 from .store import Finished, Store, StoreWriter, open_store
 from .study import Study, StudyPoint, load_study, short_names
 
@@ -100,7 +100,7 @@ def summary_line(point: StudyPoint, total: int, result, wall_time: float, names=
 
 
 def _in_process(points: list[StudyPoint], threads, advance):
-    from .ensemble import ensemble
+    from ..dynamics.ensemble import ensemble
 
     host = socket.gethostname()
     for point in points:

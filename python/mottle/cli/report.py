@@ -19,8 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .store import Store, open_store
-from .study import short_names
+from ..studies.store import Store, open_store
+from ..studies.study import short_names
 
 _LENGTH_PATH = re.compile(r"^system\.disorder\.(\d+)\.(start|stop)$")
 MAX_LEGEND = 10

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .exact import barrier_transmission, packet_average
+from ..analysis.exact import barrier_transmission, packet_average
 
 
 @dataclass(frozen=True)

@@ -83,7 +83,7 @@ def _parser() -> argparse.ArgumentParser:
         "--debug", action="store_true", default=argparse.SUPPRESS, help="show the full traceback of an error"
     )
     parser = _Parser(prog="mottle", description=MAIN_HELP, formatter_class=formatter, parents=[debug])
-    from . import __version__
+    from .. import __version__
 
     parser.add_argument("--version", action="version", version=f"mottle {__version__}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
@@ -165,8 +165,8 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 
 
 def _command_run(args) -> int:
-    from .runner import run_study
-    from .study import load_study
+    from ..studies.runner import run_study
+    from ..studies.study import load_study
 
     study = load_study(args.study)
     store = Path(args.store) if args.store else Path(args.study).with_suffix(".h5")
@@ -217,8 +217,8 @@ def _resume_command(args, store: Path) -> str:
 
 
 def _command_report(args) -> int:
+    from ..studies.store import open_store
     from .report import report
-    from .store import open_store
 
     store = open_store(args.store)
     out = Path(args.out) if args.out else Path(args.store).with_name(Path(args.store).stem + "-report")
@@ -285,7 +285,7 @@ def main(argv=None) -> int:
         return EXIT_USAGE
     warnings.showwarning = _show_warning
     os.environ.setdefault("MPLBACKEND", "Agg")
-    from .errors import MottleError
+    from ..errors import MottleError
 
     debug = getattr(args, "debug", False)
     try:
@@ -309,7 +309,3 @@ def main(argv=None) -> int:
                 file=sys.stderr,
             )
         return EXIT_FAILED
-
-
-if __name__ == "__main__":
-    sys.exit(main())

@@ -1,0 +1,1 @@
+"""Statistics and fits: Stat records, localization-length fits, momentum peaks, closed forms."""

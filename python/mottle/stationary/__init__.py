@@ -1,0 +1,2 @@
+"""Stationary transport: transfer matrices (Lyapunov exponents, transmission spectra) and
+the Born prediction."""
