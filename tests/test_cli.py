@@ -262,9 +262,10 @@ def test_report_draws_the_stored_numbers(workspace, in_process):
         # The drawn fit is the weighted least-squares line (numpy's polyfit weights are 1/sigma).
         slope, intercept = np.polyfit(x, y, 1, w=[1 / s.log_stderr for s in stats])
         fit = next(f for f in report.localization_fits(store) if f.label == f"rms={rms}")
-        assert np.isclose(fit.slope, slope, rtol=1e-9) and np.isclose(fit.intercept, intercept, rtol=1e-9)
-        assert np.isclose(fit.xi, -2 / slope, rtol=1e-9)
-        assert f"xi = {fit.xi:.4g}" in summary
+        assert np.isclose(fit.fit.slope, slope, rtol=1e-9)
+        assert np.isclose(fit.fit.intercept, intercept, rtol=1e-9)
+        assert np.isclose(fit.fit.localization_length, -2 / slope, rtol=1e-9)
+        assert f"xi = {fit.fit.localization_length:.4g}" in summary
 
     for quantity, figure in (
         ("density", report.density_figure(store)),
@@ -382,5 +383,5 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     # Stronger speckle localizes more: the fitted xi falls with the strength.
     from mottle.cli.report import localization_fits
 
-    xi = [fit.xi for fit in localization_fits(store)]
+    xi = [series.fit.localization_length for series in localization_fits(store)]
     assert len(xi) == 3 and xi[0] > xi[1] > xi[2] > 0

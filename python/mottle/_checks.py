@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import os
 
 import numpy as np
 
@@ -79,3 +80,16 @@ def choice(name: str, value: object, accepted: tuple) -> object:
     if value not in accepted:
         raise InvalidParameterError(f"{name} must be one of {', '.join(map(repr, accepted))}; got {value!r}")
     return value
+
+
+def default_threads() -> int:
+    """The cores this process may use (its CPU affinity where the system has one)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:
+        return os.cpu_count() or 1
+
+
+def threads(value: object) -> int:
+    """A ``threads=`` argument: None for every core this process may use, else an integer >= 1."""
+    return default_threads() if value is None else integer("threads", value, minimum=1)

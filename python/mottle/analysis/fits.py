@@ -13,13 +13,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks
+from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
-from .statistics import Stat
+from .statistics import Stat, stderr
 
-# Below exp(-64) of its peak a split-step density is rounding noise in double
-# precision (|psi| errors ~1e-16 of the peak amplitude; exp(-64) = 1.6e-28).
-_NOISE_FLOOR_LOG = -64.0
+_NOISE_FLOOR_LOG = limits.LOG_NOISE_FLOOR
 
 
 @dataclass(frozen=True)
@@ -50,6 +48,10 @@ class LocalizationFit:
     def lyapunov_stderr(self) -> float:
         return self.stderr / self.localization_length**2
 
+    def line(self, x) -> np.ndarray:
+        """The fitted line at ``x``."""
+        return self.intercept + self.slope * np.asarray(x, dtype=float)
+
     def __str__(self) -> str:
         return f"xi = {self.localization_length:.6g} ± {self.stderr:.2g}"
 
@@ -73,7 +75,7 @@ def _mean_and_stderr(entry, index: int) -> tuple[float, float]:
             f"log_transmission[{index}] must be a mottle.Stat or a 1-D array of at least 2 samples of ln T, "
             f"got {type(entry).__name__} of shape {values.shape}"
         )
-    return float(np.mean(values)), float(np.std(values, ddof=1) / math.sqrt(values.size))
+    return float(np.mean(values)), stderr(values)
 
 
 def fit_log_transmission(lengths, log_transmission) -> LocalizationFit:
@@ -111,24 +113,46 @@ def fit_log_transmission(lengths, log_transmission) -> LocalizationFit:
             f"every <ln T> needs a finite mean and a finite stderr > 0, got means {means.tolist()} and "
             f"stderrs {errors.tolist()} (a Stat of one realization has no stderr)"
         )
-    weights = 1.0 / errors**2
-    design = np.stack([np.ones_like(lengths), lengths], axis=1)
-    normal = design.T @ (design * weights[:, None])
-    covariance = np.linalg.inv(normal)
-    intercept, slope = covariance @ (design.T @ (weights * means))
-    residuals = means - (intercept + slope * lengths)
+    fit = line_fit(lengths, means, errors)
+    _length(fit.slope, fit.slope_stderr, -1.0, "<ln T> against L")
+    return fit
+
+
+def line_fit(x, y, errors=None) -> LocalizationFit:
+    """Least squares of ``y = intercept + slope * x``, read as ``xi = -2 / slope``.
+
+    With ``errors`` (standard errors of ``y``, all > 0) the fit is weighted by
+    ``1/errors**2`` and its covariance takes those errors as exact; without,
+    it is unweighted and the errors come from the scatter about the line (NaN
+    for two points). A slope that does not fall gives ``xi = inf`` (NaN error):
+    :func:`fit_log_transmission` refuses it, a report shows it. The one
+    weighted line fit of mottle.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    weights = np.ones_like(x) if errors is None else 1.0 / np.asarray(errors, dtype=float) ** 2
+    design = np.stack([np.ones_like(x), x], axis=1)
+    inverse = np.linalg.inv(design.T @ (design * weights[:, None]))
+    intercept, slope = inverse @ (design.T @ (weights * y))
+    residuals = y - (intercept + slope * x)
     chi_squared = float(np.sum(weights * residuals**2))
-    slope_stderr = math.sqrt(covariance[1, 1])
-    xi, xi_stderr = _length(float(slope), slope_stderr, -1.0, "<ln T> against L")
+    if errors is None:
+        scale = chi_squared / (x.size - 2) if x.size > 2 else math.nan
+        covariance = inverse * scale
+        chi_squared = math.nan
+    else:
+        covariance = inverse
+    slope, slope_stderr = float(slope), math.sqrt(covariance[1, 1])
+    decaying = slope < 0.0
     return LocalizationFit(
-        localization_length=xi,
-        stderr=xi_stderr,
-        slope=float(slope),
+        localization_length=-2.0 / slope if decaying else math.inf,
+        stderr=2.0 * slope_stderr / slope**2 if decaying else math.nan,
+        slope=slope,
         slope_stderr=slope_stderr,
         intercept=float(intercept),
         intercept_stderr=math.sqrt(covariance[0, 0]),
         chi_squared=chi_squared,
-        degrees_of_freedom=lengths.size - 2,
+        degrees_of_freedom=x.size - 2,
     )
 
 

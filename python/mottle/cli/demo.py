@@ -144,7 +144,7 @@ def run_demo(
     for fit in written.fits:
         strength = float(re.search(r"strength=([-+0-9.eE]+)", fit.label).group(1))
         lines.append(
-            f"  {fit.label}: fitted xi = {fit.xi:.3g} ± {fit.xi_stderr:.2g}, "
+            f"  {fit.label}: fitted xi = {fit.fit.localization_length:.3g} ± {fit.fit.stderr:.2g}, "
             f"Born xi = {born_xi(strength, 0.5, 1.0):.3g}"
         )
     lines += [

@@ -4,7 +4,7 @@ Each ``*_figure`` function returns a ``matplotlib.figure.Figure`` whose lines
 carry exactly the stored numbers, so what is drawn can be checked against the
 store; :func:`report` saves them as PNG next to a plain-text summary.
 
-Localization length: the amplitude convention of DESIGN.md, ``<ln T> = a - 2 L / xi``
+Localization length: the amplitude convention (docs/validation.md), ``<ln T> = a - 2 L / xi``
 for a slab of length L much longer than xi (Anderson, Thouless, Abrahams &
 Fisher, Phys. Rev. B 22, 3519 (1980)), fitted by weighted least squares with
 the standard errors of ``<ln T>`` as weights.
@@ -12,15 +12,15 @@ the standard errors of ``<ln T>`` as weights.
 
 from __future__ import annotations
 
-import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
+from ..analysis.fits import LocalizationFit, line_fit
 from ..studies.store import Store, open_store
-from ..studies.study import short_names
+from ..studies.study import format_value, point_label, short_names
 
 _LENGTH_PATH = re.compile(r"^system\.disorder\.(\d+)\.(start|stop)$")
 MAX_LEGEND = 10
@@ -53,11 +53,7 @@ def _hashable(value):
 
 
 def _group_label(paths: list[str], key: tuple, names: dict) -> str:
-    return ", ".join(f"{names[p]}={_format(v)}" for p, v in zip(paths, key, strict=True)) or "all points"
-
-
-def _format(value) -> str:
-    return f"{value:.4g}" if isinstance(value, float) else str(value)
+    return point_label(dict(zip(paths, key, strict=True)), names, empty="all points")
 
 
 def swept_numbers(store: Store) -> list[str]:
@@ -109,31 +105,19 @@ def sample_length(point, entry: int) -> float:
 
 
 @dataclass
-class LocalizationFit:
-    """``<ln T> = intercept + slope L`` fitted over ``lengths``; ``xi = -2/slope`` (amplitude)."""
+class LengthSeries:
+    """``<ln T>`` against the sample length for one value of the other swept keys, and its fit."""
 
     label: str
     lengths: np.ndarray
     log_transmission: np.ndarray
     log_stderr: np.ndarray
-    slope: float
-    slope_stderr: float
-    intercept: float
-
-    @property
-    def xi(self) -> float:
-        return -2.0 / self.slope if self.slope < 0 else math.inf
-
-    @property
-    def xi_stderr(self) -> float:
-        return 2.0 * self.slope_stderr / self.slope**2 if self.slope < 0 else math.nan
-
-    def line(self, lengths) -> np.ndarray:
-        return self.intercept + self.slope * np.asarray(lengths, dtype=float)
+    fit: LocalizationFit
 
 
-def fit_localization(lengths, log_transmission, log_stderr, label: str = "") -> LocalizationFit | None:
-    """Weighted least squares of ``<ln T>`` on L (unweighted where a standard error is missing)."""
+def fit_series(lengths, log_transmission, log_stderr, label: str = "") -> LengthSeries | None:
+    """:func:`mottle.analysis.fits.line_fit` of ``<ln T>`` on L, weighted by the standard errors
+    (unweighted where one is missing); None with fewer than two distinct lengths."""
     x = np.asarray(lengths, dtype=float)
     y = np.asarray(log_transmission, dtype=float)
     s = np.asarray(log_stderr, dtype=float)
@@ -142,23 +126,10 @@ def fit_localization(lengths, log_transmission, log_stderr, label: str = "") -> 
     if np.unique(x).size < 2:
         return None
     weighted = bool(np.all(np.isfinite(s) & (s > 0)))
-    w = 1.0 / s**2 if weighted else np.ones_like(x)
-    sw, sx, sy = w.sum(), (w * x).sum(), (w * y).sum()
-    sxx, sxy = (w * x * x).sum(), (w * x * y).sum()
-    delta = sw * sxx - sx * sx
-    slope = (sw * sxy - sx * sy) / delta
-    intercept = (sxx * sy - sx * sxy) / delta
-    if weighted:
-        slope_stderr = math.sqrt(sw / delta)
-    elif x.size > 2:
-        residual = y - intercept - slope * x
-        slope_stderr = math.sqrt(np.sum(residual**2) / (x.size - 2) * sw / delta)
-    else:
-        slope_stderr = math.nan
-    return LocalizationFit(label, x, y, s, float(slope), float(slope_stderr), float(intercept))
+    return LengthSeries(label, x, y, s, line_fit(x, y, s if weighted else None))
 
 
-def localization_fits(store: Store) -> list[LocalizationFit]:
+def localization_fits(store: Store) -> list[LengthSeries]:
     """One fit of ``<ln T>`` against the sample length per value of the other swept keys."""
     found = length_path(store)
     if found is None:
@@ -170,7 +141,7 @@ def localization_fits(store: Store) -> list[LocalizationFit]:
     for key, points in _groups(store, others).items():
         points = sorted(points, key=lambda p: sample_length(p, entry))
         stats = [p.result.transmission for p in points]
-        fit = fit_localization(
+        fit = fit_series(
             [sample_length(p, entry) for p in points],
             [s.log_mean for s in stats],
             [s.log_stderr for s in stats],
@@ -186,7 +157,11 @@ def log_transmission_figure(store: Store):
     figure, (ax,) = _figure()
     fits = localization_fits(store)
     for number, fit in enumerate(fits):
-        label = f"{fit.label}: xi = {fit.xi:.3g} ± {fit.xi_stderr:.2g}" if number < MAX_LEGEND else None
+        label = (
+            f"{fit.label}: xi = {fit.fit.localization_length:.3g} ± {fit.fit.stderr:.2g}"
+            if number < MAX_LEGEND
+            else None
+        )
         drawn = ax.errorbar(
             fit.lengths,
             fit.log_transmission,
@@ -197,7 +172,7 @@ def log_transmission_figure(store: Store):
             label=label,
         )
         span = np.linspace(0.0, fit.lengths.max(), 50)
-        ax.plot(span, fit.line(span), color=drawn.lines[0].get_color(), linewidth=1)
+        ax.plot(span, fit.fit.line(span), color=drawn.lines[0].get_color(), linewidth=1)
     ax.set_xlabel("sample length L")
     ax.set_ylabel("<ln T>")
     ax.set_title(f"{store.title}: <ln T> = a - 2L/xi")
@@ -266,7 +241,7 @@ def momentum_figure(store: Store):
     return _profile_figure(store, "momentum", log=False)
 
 
-def summary(store: Store, fits: list[LocalizationFit] | None = None) -> str:
+def summary(store: Store, fits: list[LengthSeries] | None = None) -> str:
     """A plain-text table of every finished point, and the localization-length fits."""
     names = short_names(store.sweep)
     headers = [names[p] for p in store.sweep] + ["runs", "<T>", "±", "exp<ln T>", "<ln T>", "±", "<R>", "s"]
@@ -275,7 +250,7 @@ def summary(store: Store, fits: list[LocalizationFit] | None = None) -> str:
         result = point.result
         t, r = result.transmission, result.reflection
         rows.append(
-            [_format(point.parameters[p]) for p in store.sweep]
+            [format_value(point.parameters[p]) for p in store.sweep]
             + [
                 str(point.count),
                 f"{t.mean:.5g}",
@@ -303,8 +278,8 @@ def summary(store: Store, fits: list[LocalizationFit] | None = None) -> str:
         lines.append("localization length (amplitude), <ln T> = a - 2L/xi:")
         for fit in fits:
             lines.append(
-                f"  {fit.label}: xi = {fit.xi:.4g} ± {fit.xi_stderr:.2g} from {fit.lengths.size} lengths "
-                f"(a = {fit.intercept:.3g})"
+                f"  {fit.label}: xi = {fit.fit.localization_length:.4g} ± {fit.fit.stderr:.2g} "
+                f"from {fit.lengths.size} lengths (a = {fit.fit.intercept:.3g})"
             )
     return "\n".join(lines) + "\n"
 
@@ -316,7 +291,7 @@ class Report:
     out: Path
     files: list[Path] = field(default_factory=list)
     summary_text: str = ""
-    fits: list[LocalizationFit] = field(default_factory=list)
+    fits: list[LengthSeries] = field(default_factory=list)
 
 
 def report(store: Store | str, out: str | Path) -> Report:
@@ -356,10 +331,10 @@ def _file_name(name: str) -> str:
 
 
 __all__ = [
-    "LocalizationFit",
+    "LengthSeries",
     "Report",
     "density_figure",
-    "fit_localization",
+    "fit_series",
     "localization_fits",
     "log_transmission_figure",
     "momentum_figure",

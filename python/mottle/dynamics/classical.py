@@ -109,7 +109,6 @@ def classical_ensemble(
     :func:`mottle.propagate` (``detector`` defaults to the disorder region, as
     in :func:`mottle.ensemble`). The GIL is released and Ctrl-C stops the run.
     """
-    from ..stationary.localization import _threads
 
     check_system(system)
     if not isinstance(packet, GaussianPacket):
@@ -130,7 +129,7 @@ def classical_ensemble(
         )
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)
-    threads = _threads(threads)
+    threads = _checks.threads(threads)
     steps = steps_for(duration, step)
     pauses = pauses_for(snapshots, step, steps)
     if detector is None and system.disorder is not None:

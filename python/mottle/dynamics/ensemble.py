@@ -10,14 +10,13 @@ independent of the number of realizations.
 from __future__ import annotations
 
 import math
-import os
 import warnings
 from dataclasses import dataclass, field, fields
 
 import numpy as np
 
-from .. import _checks, _core
-from ..analysis.statistics import Stat
+from .. import _checks, _core, limits
+from ..analysis.statistics import Stat, stderr, stderr_from_sums
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
 from ..specs.system import System
@@ -38,17 +37,8 @@ CHUNK: int = _core.CHUNK
 _SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right")
 _PER_SNAPSHOT = ("position", "position_squared", "participation")
 _PER_MODE = ("spectrum",)
-# A spectrum resolves at most this many wavenumbers (evenly thinned beyond).
-_MAX_MODES = 256
+_MAX_MODES = limits.SPECTRUM_MODES
 _PROFILES = ("density", "density_squared", "log_density", "log_density_squared", "momentum")
-
-
-def default_threads() -> int:
-    """The cores this process may use."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:
-        return os.cpu_count() or 1
 
 
 @dataclass
@@ -205,15 +195,10 @@ def _finish(fold: _Fold, seed: int, times: np.ndarray, system: System, modes_inf
     samples["spectrum"] = samples["spectrum"].reshape(count, modes)
     sums = fold.sums
 
-    def mean_and_stderr(total, total_squared):
-        mean = total / count
-        if count < 2:
-            return mean, np.full_like(mean, np.nan)
-        variance = np.maximum(total_squared / count - mean**2, 0.0) * count / (count - 1)
-        return mean, np.sqrt(variance / count)
-
-    density, density_stderr = mean_and_stderr(sums["density"], sums["density_squared"])
-    log_density, log_density_stderr = mean_and_stderr(sums["log_density"], sums["log_density_squared"])
+    density, density_stderr = stderr_from_sums(sums["density"], sums["density_squared"], count)
+    log_density, log_density_stderr = stderr_from_sums(
+        sums["log_density"], sums["log_density_squared"], count
+    )
     momentum = np.fft.fftshift(sums["momentum"] / count, axes=-1)
     return EnsembleResult(
         count=count,
@@ -265,20 +250,14 @@ class Spectrum:
     @classmethod
     def of(cls, wavenumbers, energies, samples) -> Spectrum:
         samples = np.asarray(samples, dtype=float)
-        count = samples.shape[0]
         logs = np.log(np.maximum(samples, 1e-300))
-        spread = (
-            (lambda v: np.std(v, axis=0, ddof=1) / np.sqrt(count))
-            if count > 1
-            else (lambda v: np.full(v.shape[1], np.nan))
-        )
         return cls(
             wavenumbers=np.asarray(wavenumbers),
             energies=np.asarray(energies),
             mean=np.mean(samples, axis=0),
-            stderr=spread(samples),
+            stderr=stderr(samples),
             log_mean=np.mean(logs, axis=0),
-            log_stderr=spread(logs),
+            log_stderr=stderr(logs),
             samples=samples,
         )
 
@@ -286,10 +265,10 @@ class Spectrum:
 def _packet_band(packet, grid) -> tuple[float, float]:
     """The wavenumbers one packet carries: k0 +- 3.5 sigma_k, or where |phi(k)|**2 > 1e-3 of its peak."""
     if isinstance(packet, GaussianPacket):
-        reach = 3.5 * packet.wavenumber_spread
+        reach = limits.SPECTRUM_BAND * packet.wavenumber_spread
         return packet.wavenumber - reach, packet.wavenumber + reach
     weight = np.abs(np.fft.fft(packet.values(grid))) ** 2
-    strong = grid.k[weight >= 1e-3 * weight.max()]
+    strong = grid.k[weight >= limits.SPECTRUM_WEIGHT * weight.max()]
     return float(strong.min()), float(strong.max())
 
 
@@ -320,7 +299,7 @@ def _spectrum_problems(system, packet, step, duration, x_probe, slowest) -> list
     model, grid = system.model, system.grid
     problems = []
     top = float(np.max(model.kinetic(grid.k, grid.dx)) - model.band_bottom(grid.dx))
-    if top * step / system.hbar >= 2.0 * math.pi:
+    if top * step / system.hbar >= limits.SPECTRUM_PHASE_PER_STEP:
         # Modes whose kinetic phases per step differ by 2 pi share a quasi-energy of the
         # discrete-time evolution; the sample's sharp features scatter into them and the
         # time transform cannot tell them apart (measured: 3e-3 errors in T(k)).
@@ -495,10 +474,6 @@ def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
     )
 
 
-def _threads(threads) -> int:
-    return default_threads() if threads is None else _checks.integer("threads", threads, minimum=1)
-
-
 def ensemble(
     system: System,
     packet,
@@ -534,7 +509,7 @@ def ensemble(
     under-resolved, ``False`` skips it. Ctrl-C stops within a second.
     """
     realizations = _checks.integer("realizations", realizations, minimum=1)
-    threads = _threads(threads)
+    threads = _checks.threads(threads)
     if target_stderr is not None:
         target_stderr = _checks.positive("target_stderr", target_stderr)
     prepared = plan(
@@ -553,7 +528,7 @@ def ensemble(
                 progress(fold.count, realizations)
             if target_stderr is not None and fold.count >= 2:
                 transmission = fold.transmission()
-                if np.std(transmission, ddof=1) / math.sqrt(transmission.size) < target_stderr:
+                if stderr(transmission) < target_stderr:
                     return _finish(fold, prepared.seed, prepared.times, system, prepared.modes_info)
         start += count
     return _finish(fold, prepared.seed, prepared.times, system, prepared.modes_info)
@@ -589,7 +564,7 @@ def ensemble_partial(
     )
     return EnsemblePartial(
         start=start,
-        chunks=list(_run_chunks(prepared, start, count, _threads(threads))),
+        chunks=list(_run_chunks(prepared, start, count, _checks.threads(threads))),
         seed=prepared.seed,
         times=prepared.times,
         spectrum_wavenumbers=prepared.modes_info[0],

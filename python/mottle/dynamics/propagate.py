@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks, _core
+from .. import _checks, _core, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, Wavefunction
 from ..specs.system import System
@@ -177,8 +177,8 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
     grid, model, hbar = system.grid, system.model, system.hbar
     band, floor, ceiling = _reach(system, packet, potential)
     kinetic_phase = (model.kinetic(band, grid.dx) - model.kinetic(0.0, grid.dx)) * step / hbar
-    if kinetic_phase > math.pi:
-        limit = _three_digits(step * math.pi / kinetic_phase, math.floor)
+    if kinetic_phase > limits.PHASE_PER_STEP:
+        limit = _three_digits(step * limits.PHASE_PER_STEP / kinetic_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the kinetic phase per step reaches {kinetic_phase:.3g} rad at "
             f"|k| = {band:.3g}, the largest wavenumber this run populates "
@@ -188,8 +188,8 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
         )
     span = float(np.max(np.minimum(potential, ceiling)) - floor) if potential.size else 0.0
     potential_phase = span * step / hbar
-    if potential_phase > math.pi:
-        limit = _three_digits(step * math.pi / potential_phase, math.floor)
+    if potential_phase > limits.PHASE_PER_STEP:
+        limit = _three_digits(step * limits.PHASE_PER_STEP / potential_phase, math.floor)
         warnings.warn(
             f"step {step} is too coarse: the potential phase per step reaches {potential_phase:.3g} rad "
             f"across the potential's range {span:.3g} that the packet feels (keep it below pi: "
@@ -200,7 +200,7 @@ def warn_if_coarse(system: System, packet, step: float, potential: np.ndarray) -
     if system.absorber is not None:
         energy = packet.mean_kinetic(model, grid.dx)
         design = system.absorber.design_energy(model, grid.dx)
-        if system.absorber.strength is None and energy < 2.0 * design:
+        if system.absorber.strength is None and energy < limits.ABSORBER_ENERGY_MARGIN * design:
             wide_enough = _three_digits(system.absorber.width_for(energy, model, grid.dx), math.ceil)
             warnings.warn(
                 f"absorber width {system.absorber.width} reflects more than 1e-3 of a packet of mean energy "

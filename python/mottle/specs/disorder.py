@@ -14,12 +14,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks
+from .. import _checks, limits
 from ..errors import InvalidParameterError
 from .grid import Grid
 
-# A correlated model needs this many grid spacings per correlation length.
-_MIN_POINTS_PER_CORRELATION = 2.0
+_MIN_POINTS_PER_CORRELATION = limits.POINTS_PER_CORRELATION
 
 
 class Disorder:

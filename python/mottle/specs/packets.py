@@ -8,12 +8,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks
+from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from .grid import Grid
 
-# Beyond this many standard deviations a Gaussian is below rounding for our purposes.
-_TAIL = 5.0
+_TAIL = limits.PACKET_TAIL
 
 
 @dataclass(frozen=True)

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks
+from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
 from .disorder import Disorder
@@ -72,10 +72,11 @@ class System:
                     f"absorber width {self.absorber.width} leaves no room inside the box of length "
                     f"{self.grid.length}: use width < {0.5 * self.grid.length:g} (each layer)"
                 )
-            if self.absorber.width < 4.0 * self.grid.dx:
+            spacings = limits.ABSORBER_MIN_SPACINGS
+            if self.absorber.width < spacings * self.grid.dx:
                 raise InvalidParameterError(
-                    f"absorber width {self.absorber.width} spans fewer than 4 grid spacings "
-                    f"(dx = {self.grid.dx:.4g}): use width >= {4 * self.grid.dx:.4g}"
+                    f"absorber width {self.absorber.width} spans fewer than {spacings:g} grid spacings "
+                    f"(dx = {self.grid.dx:.4g}): use width >= {spacings * self.grid.dx:.4g}"
                 )
         object.__setattr__(self, "nonlinearity", _checks.real("nonlinearity", self.nonlinearity))
 

@@ -23,22 +23,16 @@ Conventions (the same everywhere in mottle):
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from .. import _checks, _core
-from ..analysis.statistics import Stat
-from ..dynamics.ensemble import default_threads
+from ..analysis.statistics import Stat, stderr
 from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
 from ..specs.models import Lattice
 from ..specs.system import System
-
-
-def _threads(threads) -> int:
-    return default_threads() if threads is None else _checks.integer("threads", threads, minimum=1)
 
 
 def _check_linear(system) -> None:
@@ -214,7 +208,7 @@ def lyapunov(
     energies, scalar = _energies(energy)
     realizations = _checks.integer("realizations", realizations, minimum=1)
     seed = _checks.integer("seed", seed, minimum=0)
-    threads = _threads(threads)
+    threads = _checks.threads(threads)
     first, end = _region_points(system, region)
     _check_memory(realizations, energies.size)
     line, terms, static, medium, config = _core_inputs(system, seed, realizations, threads)
@@ -277,9 +271,7 @@ class TransmissionSpectrum:
     @property
     def log_stderr(self) -> np.ndarray:
         """Standard error of ``<ln T>`` per energy (NaN with one realization)."""
-        if self.count < 2:
-            return np.full(self.energies.shape, np.nan)
-        return np.std(self.log_samples, axis=0, ddof=1) / math.sqrt(self.count)
+        return stderr(self.log_samples)
 
     @property
     def typical(self) -> np.ndarray:
@@ -358,7 +350,7 @@ def transmission_spectrum(
     energies, _ = _energies(energies)
     realizations = _checks.integer("realizations", realizations, minimum=1)
     seed = _checks.integer("seed", seed, minimum=0)
-    threads = _threads(threads)
+    threads = _checks.threads(threads)
     grid = system.grid
     if system.disorder is not None:
         for term in system.disorder.terms:

@@ -31,6 +31,7 @@ import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
 
+from .. import _checks
 from ..errors import InvalidParameterError, MottleError
 from .study import StudyPoint, build_packet, build_system, run_arguments
 
@@ -72,8 +73,6 @@ def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, co
 
 def _worker_threads() -> int:
     """This worker's cores shared among the tasks it runs at once (its Dask threads)."""
-    from ..dynamics.ensemble import default_threads
-
     try:
         from distributed import get_worker
 
@@ -82,7 +81,7 @@ def _worker_threads() -> int:
         concurrent = int(getattr(state, "nthreads", None) or worker.nthreads)
     except (ImportError, ValueError, AttributeError):
         concurrent = 1
-    return max(1, default_threads() // max(concurrent, 1))
+    return max(1, _checks.default_threads() // max(concurrent, 1))
 
 
 def _distributed():
@@ -129,9 +128,7 @@ def connect(workers: int | None = None, scheduler=None, threads: int | None = No
             return
         if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
             raise InvalidParameterError(f"workers must be an integer >= 1, got {workers!r}")
-        from ..dynamics.ensemble import default_threads
-
-        per_task = threads or max(1, default_threads() // workers)
+        per_task = threads or max(1, _checks.default_threads() // workers)
         import logging
 
         with _workers_ignore_ctrl_c():

@@ -52,7 +52,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import MottleError
-from .study import Study, differences, short_names
+from .study import Study, differences, point_label
 
 FORMAT = "mottle-results-store"
 FORMAT_VERSION = 1
@@ -188,12 +188,7 @@ class StoredPoint:
         return self._result
 
     def label(self, names: Mapping[str, str] | None = None) -> str:
-        names = names or short_names(self.parameters)
-        return ", ".join(f"{names[k]}={_format(v)}" for k, v in self.parameters.items()) or "single point"
-
-
-def _format(value: object) -> str:
-    return f"{value:.6g}" if isinstance(value, float) else str(value)
+        return point_label(self.parameters, names)
 
 
 class Store:

@@ -239,11 +239,7 @@ class StudyPoint:
 
     def label(self, names: Mapping[str, str] | None = None) -> str:
         """``stop=25, wavenumber=0.8``: the swept values, by short names."""
-        names = names or short_names(self.parameters)
-        return (
-            ", ".join(f"{names[path]}={_format(value)}" for path, value in self.parameters.items())
-            or "single point"
-        )
+        return point_label(self.parameters, names)
 
 
 def _plain(make):
@@ -253,8 +249,17 @@ def _plain(make):
         raise InvalidParameterError(f"{'.'.join(error.path)}: {error.message}") from None
 
 
-def _format(value: object) -> str:
+def format_value(value: object) -> str:
+    """A swept value as labels and tables show it (floats to 6 significant digits)."""
     return f"{value:.6g}" if isinstance(value, float) else str(value)
+
+
+def point_label(
+    parameters: Mapping[str, object], names: Mapping[str, str] | None = None, empty: str = "single point"
+) -> str:
+    """``stop=25, wavenumber=0.8``: swept values by short names (the one point label of mottle)."""
+    names = names or short_names(parameters)
+    return ", ".join(f"{names[path]}={format_value(value)}" for path, value in parameters.items()) or empty
 
 
 def short_names(parameters) -> dict[str, str]:
