@@ -1,0 +1,205 @@
+//! Bindings for single runs (`crate::propagate`) and the run setup they share
+//! with ensembles (`crate::stepper::Setup`).
+
+use std::sync::atomic::AtomicBool;
+
+use num_complex::Complex64;
+use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1};
+use pyo3::prelude::*;
+use pyo3::types::PyDict;
+
+use super::dispersion::ModelRequest;
+use super::error::to_pyerr;
+use super::request::request;
+use super::{run_detached, table};
+use crate::error::CoreError;
+use crate::observables::{Detector, Observation};
+use crate::propagate::{propagate, Output, Request};
+use crate::real::Real;
+use crate::splitting::Splitting;
+use crate::stepper::{Setup, Shared};
+
+request! {
+    /// The grid, model, step and absorbing layers of a run.
+    pub(crate) struct SetupRequest("setup") {
+        points: usize,
+        dx: f64,
+        start: f64,
+        model: ModelRequest,
+        nonlinearity: f64,
+        step: f64,
+        splitting: String,
+        left_layer_end: usize,
+        right_layer_start: usize,
+    }
+}
+
+impl SetupRequest {
+    pub(crate) fn setup(self, kinetic: Vec<f64>, absorption: Vec<f64>) -> Result<Setup, CoreError> {
+        Ok(Setup {
+            points: self.points,
+            dx: self.dx,
+            start: self.start,
+            hbar: self.model.hbar(),
+            kinetic,
+            absorption,
+            left_layer_end: self.left_layer_end,
+            right_layer_start: self.right_layer_start,
+            nonlinearity: self.nonlinearity,
+            step: self.step,
+            splitting: Splitting::named(&self.splitting)?,
+        })
+    }
+}
+
+/// The detector `(left_end, right_start)`: grid points left of and right of it.
+pub(crate) fn detector(bounds: Option<(usize, usize)>) -> Option<Detector> {
+    bounds.map(|(left_end, right_start)| Detector {
+        left_end,
+        right_start,
+    })
+}
+
+request! {
+    /// Where the classical particle of a single run starts.
+    pub(crate) struct ClassicalStart("classical start") {
+        position: f64,
+        momentum: f64,
+    }
+}
+
+request! {
+    /// The steps, pauses and outputs of a single run.
+    pub(crate) struct RunRequest("run") {
+        steps: usize,
+        pauses: Vec<usize>,
+        keep_snapshots: bool,
+        detector: Option<(usize, usize)>,
+        classical: Option<ClassicalStart>,
+        precision: Precision,
+    }
+}
+
+/// The floating-point type a run computes in.
+#[derive(Clone, Copy)]
+pub(crate) enum Precision {
+    Double,
+    Single,
+}
+
+impl<'a, 'py> FromPyObject<'a, 'py> for Precision {
+    type Error = PyErr;
+
+    fn extract(object: Borrowed<'a, 'py, PyAny>) -> PyResult<Self> {
+        let name: String = object.extract()?;
+        match name.as_str() {
+            "double" => Ok(Precision::Double),
+            "single" => Ok(Precision::Single),
+            other => Err(to_pyerr(
+                object.py(),
+                CoreError::InvalidInput(format!(
+                    "precision {other:?}: use \"double\" or \"single\""
+                )),
+            )),
+        }
+    }
+}
+
+fn run_in<T: Real>(
+    setup: Setup,
+    request: Request,
+    cancel: &AtomicBool,
+) -> Result<Output, CoreError> {
+    let shared = Shared::<T>::new(setup)?;
+    propagate(&shared, &request, cancel)
+}
+
+pub(crate) fn observations_dict<'py>(
+    py: Python<'py>,
+    observations: &[Observation],
+) -> PyResult<Bound<'py, PyDict>> {
+    let dict = PyDict::new(py);
+    let column = |f: fn(&Observation) -> f64| {
+        observations
+            .iter()
+            .map(f)
+            .collect::<Vec<f64>>()
+            .into_pyarray(py)
+    };
+    dict.set_item("norm", column(|o| o.norm))?;
+    dict.set_item("absorbed_left", column(|o| o.absorbed.left))?;
+    dict.set_item("absorbed_right", column(|o| o.absorbed.right))?;
+    dict.set_item("position", column(|o| o.position))?;
+    dict.set_item("position_squared", column(|o| o.position_squared))?;
+    dict.set_item("momentum", column(|o| o.momentum))?;
+    dict.set_item("energy", column(|o| o.energy))?;
+    dict.set_item("reflection", column(|o| o.reflection))?;
+    dict.set_item("transmission", column(|o| o.transmission))?;
+    Ok(dict)
+}
+
+/// Propagate one wavefunction; see `mottle.propagate` for the conventions.
+#[pyfunction]
+fn propagate_one<'py>(
+    py: Python<'py>,
+    setup: SetupRequest,
+    run: RunRequest,
+    kinetic: PyReadonlyArray1<'py, f64>,
+    absorption: PyReadonlyArray1<'py, f64>,
+    potential: PyReadonlyArray1<'py, f64>,
+    psi: PyReadonlyArray1<'py, Complex64>,
+) -> PyResult<Bound<'py, PyDict>> {
+    // Copies: another Python thread could write these buffers while we run detached.
+    let kinetic = kinetic.as_array().to_vec();
+    let absorption = absorption.as_array().to_vec();
+    let potential = potential.as_array().to_vec();
+    let psi = psi.as_array().to_vec();
+    let dx = setup.dx;
+    let prepared = (|| {
+        let classical = match &run.classical {
+            Some(start) => Some((start.position, start.momentum, setup.model.kinetic(dx)?)),
+            None => None,
+        };
+        let setup = setup.setup(kinetic, absorption)?;
+        let request = Request {
+            psi,
+            potential,
+            steps: run.steps,
+            pauses: run.pauses.clone(),
+            keep_snapshots: run.keep_snapshots,
+            detector: detector(run.detector),
+            classical,
+        };
+        Ok::<_, CoreError>((setup, request))
+    })();
+    let (setup, request) = prepared.map_err(|error| to_pyerr(py, error))?;
+    let precision = run.precision;
+    let output = run_detached(py, move |cancel| match precision {
+        Precision::Double => run_in::<f64>(setup, request, cancel),
+        Precision::Single => run_in::<f32>(setup, request, cancel),
+    })?;
+
+    let points = output.psi.len();
+    let dict = PyDict::new(py);
+    dict.set_item("psi", output.psi.into_pyarray(py))?;
+    let snapshot_count = output.snapshots.len();
+    let flat: Vec<Complex64> = output.snapshots.into_iter().flatten().collect();
+    dict.set_item("snapshots", table(py, flat, snapshot_count, points)?)?;
+    dict.set_item("observations", observations_dict(py, &output.observations)?)?;
+    dict.set_item(
+        "last",
+        observations_dict(py, std::slice::from_ref(&output.last))?,
+    )?;
+    let positions: Vec<f64> = output.classical.iter().map(|p| p.position).collect();
+    let momenta: Vec<f64> = output.classical.iter().map(|p| p.momentum).collect();
+    let absorbed: Vec<i8> = output.classical.iter().map(|p| p.absorbed).collect();
+    dict.set_item("classical_position", PyArray1::from_vec(py, positions))?;
+    dict.set_item("classical_momentum", PyArray1::from_vec(py, momenta))?;
+    dict.set_item("classical_absorbed", PyArray1::from_vec(py, absorbed))?;
+    Ok(dict)
+}
+
+pub(crate) fn register(module: &Bound<'_, PyModule>) -> PyResult<()> {
+    module.add_function(wrap_pyfunction!(propagate_one, module)?)?;
+    Ok(())
+}
