@@ -22,8 +22,9 @@ from .dynamics.ensemble import (
 from .dynamics.propagate import Run, propagate
 from .dynamics.realize import realize
 from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
+from .specs import disorder as _disorder
 from .specs.absorber import Absorber
-from .specs.disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
+from .specs.disorder import *  # noqa: F403 (every disorder model, listed once in its module)
 from .specs.grid import Grid
 from .specs.models import Continuum, Lattice
 from .specs.packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
@@ -46,11 +47,9 @@ __all__ = [
     "CHUNK",
     "Absorber",
     "Barrier",
-    "BoxDisorder",
     "Continuum",
     "EnsemblePartial",
     "EnsembleResult",
-    "GaussianDisorder",
     "GaussianPacket",
     "Grid",
     "Harmonic",
@@ -62,7 +61,6 @@ __all__ = [
     "PacketList",
     "RandomPacket",
     "Run",
-    "Speckle",
     "Stat",
     "Store",
     "StoreError",
@@ -75,7 +73,6 @@ __all__ = [
     "UnderResolvedWarning",
     "Uniform",
     "Wavefunction",
-    "WhiteNoise",
     "ensemble",
     "ensemble_partial",
     "load_study",
@@ -86,6 +83,8 @@ __all__ = [
     "reference",
     "run_study",
 ]
+
+__all__ += _disorder.__all__
 
 # Localization and transport statistics (transfer matrices, fits, classical ensembles).
 __all__ += [

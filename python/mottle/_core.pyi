@@ -1,6 +1,12 @@
-"""Type stubs of the Rust extension (rust/src/bindings/). Called only through mottle's Python API."""
+"""Type stubs of the Rust extension (rust/src/bindings/). Called only through mottle's Python API.
 
-from typing import Any
+The requests (the ``_``-named TypedDicts, which exist only here) are built by
+``mottle._requests`` and read by rust/src/bindings/ into typed structs and
+enums with exactly these fields; a request with several shapes is tagged by
+``kind``. Disorder terms carry the declared fields of their spec classes.
+"""
+
+from typing import Any, Literal, TypedDict
 
 import numpy as np
 import numpy.typing as npt
@@ -8,6 +14,9 @@ import numpy.typing as npt
 __all__ = [
     "CHUNK",
     "DENSITY_FLOOR",
+    "InvalidParameterError",
+    "InvalidTypeError",
+    "MottleError",
     "__version__",
     "classical_particles",
     "draw_packet",
@@ -22,48 +31,201 @@ __version__: str
 CHUNK: int
 DENSITY_FLOOR: float
 
+class MottleError(Exception):
+    """Base class of every exception mottle raises on purpose."""
+
+class InvalidParameterError(MottleError, ValueError):
+    """A parameter has an impossible or unsupported value."""
+
+class InvalidTypeError(MottleError, TypeError):
+    """A parameter has the wrong type."""
+
+_Precision = Literal["double", "single"]
+_Splitting = Literal["strang", "yoshida", "blanes-moan"]
+
+class _Line(TypedDict):
+    points: int
+    dx: float
+    start: float
+
+class _Continuum(TypedDict):
+    kind: Literal["continuum"]
+    hbar: float
+    mass: float
+
+class _Lattice(TypedDict):
+    kind: Literal["lattice"]
+    hbar: float
+    hopping: float
+
+_Model = _Continuum | _Lattice
+
+class _Setup(TypedDict):
+    points: int
+    dx: float
+    start: float
+    model: _Model
+    nonlinearity: float
+    step: float
+    splitting: _Splitting
+    left_layer_end: int
+    right_layer_start: int
+
+class _ClassicalStart(TypedDict):
+    position: float
+    momentum: float
+
+class _Run(TypedDict):
+    steps: int
+    pauses: list[int]
+    keep_snapshots: bool
+    detector: tuple[int, int] | None
+    classical: _ClassicalStart | None
+    precision: _Precision
+
+class _Spectrum(TypedDict):
+    probes: list[int]
+    positions: list[float]
+    modes: list[int]
+    wavenumbers: list[float]
+    energies: list[float]
+    velocities: list[float]
+
+class _EnsembleRun(TypedDict):
+    steps: int
+    pauses: list[int]
+    detector: tuple[int, int] | None
+    seed: int
+    start: int
+    count: int
+    threads: int
+    precision: _Precision
+    spectrum: _Spectrum | None
+
+class _WhiteNoise(TypedDict):
+    kind: Literal["white-noise"]
+    strength: float
+    start: float
+    stop: float
+
+class _Box(TypedDict):
+    kind: Literal["box"]
+    width: float
+    start: float
+    stop: float
+
+class _Gaussian(TypedDict):
+    kind: Literal["gaussian"]
+    rms: float
+    correlation_length: float
+    start: float
+    stop: float
+
+class _Speckle(TypedDict):
+    kind: Literal["speckle"]
+    strength: float
+    correlation_length: float
+    sign: int
+    start: float
+    stop: float
+
+_Term = _WhiteNoise | _Box | _Gaussian | _Speckle
+
+class _FixedDraw(TypedDict):
+    kind: Literal["fixed"]
+    value: float
+
+class _UniformDraw(TypedDict):
+    kind: Literal["uniform"]
+    low: float
+    high: float
+
+class _NormalDraw(TypedDict):
+    kind: Literal["normal"]
+    mean: float
+    std: float
+
+_Draw = _FixedDraw | _UniformDraw | _NormalDraw
+
+class _FixedPackets(TypedDict):
+    kind: Literal["fixed"]
+    values: npt.NDArray[np.complex128]
+
+class _ListPackets(TypedDict):
+    kind: Literal["list"]
+    values: npt.NDArray[np.complex128]
+
+class _GaussianPackets(TypedDict):
+    kind: Literal["gaussian"]
+    center: _Draw
+    wavenumber: _Draw
+    width: _Draw
+
+_Packets = _FixedPackets | _ListPackets | _GaussianPackets
+
+class _Realizations(TypedDict):
+    seed: int
+    start: int
+    count: int
+    threads: int
+
+class _Particles(TypedDict):
+    center: float
+    position_spread: float
+    momentum: float
+    momentum_spread: float
+    particles: int
+    seed: int
+    index: int
+    step: float
+    steps: int
+    pauses: list[int]
+    left_layer_end: int
+    right_layer_start: int
+    threads: int
+
 def propagate_one(
-    setup: dict[str, Any],
-    run: dict[str, Any],
+    setup: _Setup,
+    run: _Run,
     kinetic: npt.NDArray[np.float64],
     absorption: npt.NDArray[np.float64],
     potential: npt.NDArray[np.float64],
     psi: npt.NDArray[np.complex128],
 ) -> dict[str, Any]: ...
 def realize(
-    line: dict[str, Any],
-    disorder: list[dict[str, Any]],
+    line: _Line,
+    disorder: list[_Term],
     base: npt.NDArray[np.float64],
     seed: int,
     index: int,
 ) -> npt.NDArray[np.float64]: ...
-def draw_packet(packets: dict[str, Any], seed: int, index: int) -> tuple[float, float, float]: ...
+def draw_packet(packets: _Packets, seed: int, index: int) -> tuple[float, float, float]: ...
 def ensemble_chunks(
-    setup: dict[str, Any],
-    run: dict[str, Any],
+    setup: _Setup,
+    run: _EnsembleRun,
     kinetic: npt.NDArray[np.float64],
     absorption: npt.NDArray[np.float64],
     static_potential: npt.NDArray[np.float64],
-    disorder: list[dict[str, Any]],
-    packets: dict[str, Any],
+    disorder: list[_Term],
+    packets: _Packets,
 ) -> list[dict[str, Any]]: ...
 def lyapunov_exponents_of(
-    line: dict[str, Any],
-    disorder: list[dict[str, Any]],
+    line: _Line,
+    disorder: list[_Term],
     static_potential: npt.NDArray[np.float64],
-    medium: dict[str, Any],
+    model: _Model,
     region: tuple[int, int],
     energies: list[float],
-    realizations: dict[str, Any],
+    realizations: _Realizations,
 ) -> npt.NDArray[np.float64]: ...
 def log_transmissions_of(
-    line: dict[str, Any],
-    disorder: list[dict[str, Any]],
+    line: _Line,
+    disorder: list[_Term],
     static_potential: npt.NDArray[np.float64],
-    medium: dict[str, Any],
+    model: _Model,
     energies: list[float],
-    realizations: dict[str, Any],
+    realizations: _Realizations,
 ) -> npt.NDArray[np.float64]: ...
 def classical_particles(
-    config: dict[str, Any], medium: dict[str, Any], potential: npt.NDArray[np.float64]
+    line: _Line, model: _Model, config: _Particles, potential: npt.NDArray[np.float64]
 ) -> dict[str, Any]: ...

@@ -7,18 +7,12 @@ as Python users expect and ``except MottleError`` catches everything of ours.
 
 from __future__ import annotations
 
-
-class MottleError(Exception):
-    """Base class of every exception mottle raises on purpose."""
-
-
-class InvalidParameterError(MottleError, ValueError):
-    """A parameter has an impossible or unsupported value."""
-
-
-class InvalidTypeError(MottleError, TypeError):
-    """A parameter has the wrong type."""
+# Defined once, in the core (rust/src/bindings/error.rs), so that the core raises them directly.
+from ._core import InvalidParameterError, InvalidTypeError, MottleError
 
 
 class UnderResolvedWarning(UserWarning):
     """The run is visibly under-resolved (step, grid or absorber too coarse)."""
+
+
+__all__ = ["InvalidParameterError", "InvalidTypeError", "MottleError", "UnderResolvedWarning"]

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks, _core
+from .. import _checks, _core, _requests
 from ..analysis.statistics import Stat
 from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
@@ -137,31 +137,23 @@ def classical_ensemble(
     detector = check_detector(detector)
     grid, model = system.grid, system.model
     hbar = model.hbar
-    left_end, right_start = system.layer_bounds()
-    config = {
-        "center": packet.center,
-        "position_spread": packet.width,
-        "momentum": hbar * packet.wavenumber,
-        "momentum_spread": hbar * packet.wavenumber_spread,
-        "particles": particles,
-        "seed": seed,
-        "index": index,
-        "step": step,
-        "steps": steps,
-        "pauses": pauses,
-        "start": grid.start,
-        "left_layer_end": left_end,
-        "right_layer_start": right_start,
-        "threads": threads,
-    }
-    medium = {
-        "model": model.kind,
-        "hbar": hbar,
-        "mass": getattr(model, "mass", 1.0),
-        "hopping": getattr(model, "hopping", 1.0),
-        "dx": grid.dx,
-    }
-    out = _core.classical_particles(config, medium, realize(system, seed, index))
+    config = _requests.particles(
+        system,
+        packet.center,
+        packet.width,
+        hbar * packet.wavenumber,
+        hbar * packet.wavenumber_spread,
+        particles,
+        seed,
+        index,
+        step,
+        steps,
+        pauses,
+        threads,
+    )
+    out = _core.classical_particles(
+        _requests.line(grid), _requests.model(model), config, realize(system, seed, index)
+    )
     return ClassicalEnsemble(
         times=np.asarray(pauses, dtype=float) * step,
         x=np.asarray(grid.x),

@@ -12,10 +12,11 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass, field, fields
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .. import _checks, _core, limits
+from .. import _checks, _core, _requests, limits
 from ..analysis.statistics import Stat, stderr, stderr_from_sums
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
@@ -25,11 +26,13 @@ from .propagate import (
     detector_bounds,
     pauses_for,
     resolve_splitting,
-    setup_config,
     steps_for,
     warn_if_coarse,
 )
 from .realize import realize
+
+if TYPE_CHECKING:
+    from .._core import _EnsembleRun, _Packets, _Setup, _Term
 
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""
@@ -371,13 +374,8 @@ def _spectrum_config(system: System, packet, bounds, step: float, duration: floa
         return None
     for problem in problems:
         warnings.warn(problem, UnderResolvedWarning, stacklevel=4)
-    return (
-        probes,
-        [float(system.grid.x[p]) for p in probes],
-        [int(m) for m in modes],
-        [float(v) for v in k],
-        [float(e) for e in energies],
-        [float(v) for v in velocities],
+    return _requests.spectrum(
+        probes, [float(system.grid.x[p]) for p in probes], modes.tolist(), k.tolist(), energies, velocities
     )
 
 
@@ -385,22 +383,16 @@ def _spectrum_config(system: System, packet, bounds, step: float, duration: floa
 class _Plan:
     """Everything a call to the core needs, validated once."""
 
-    setup: dict
-    run: dict
+    setup: _Setup
+    run: _EnsembleRun
     kinetic: np.ndarray
     absorption: np.ndarray
     static: np.ndarray
-    disorder: list
-    packets: dict
+    disorder: list[_Term]
+    packets: _Packets
     times: np.ndarray
     seed: int
     modes_info: tuple
-
-
-def _packet_config(system: System, packet) -> dict:
-    if isinstance(packet, (GaussianPacket, Wavefunction)):
-        return {"kind": "fixed", "values": packet.values(system.grid).astype(np.complex128)}
-    return packet.config(system.grid)
 
 
 def _default_detector(system: System, detector):
@@ -440,27 +432,23 @@ def plan(
     bounds = detector_bounds(system, _default_detector(system, detector))
     first = packet if isinstance(packet, (GaussianPacket, Wavefunction)) else packet.packet(seed, 0)
     warn_if_coarse(system, first, step, realize(system, seed, 0))
-    terms = [] if system.disorder is None else [term.config() for term in system.disorder.terms]
     if spectrum not in (None, True, False):
         raise InvalidTypeError(f"spectrum must be None, True or False, got {spectrum!r}")
     spectrum = _spectrum_config(system, packet, bounds, step, duration, spectrum)
     k = np.asarray(system.grid.k)
-    modes_info = (np.zeros(0), np.zeros(0)) if spectrum is None else (k[spectrum[2]], np.asarray(spectrum[4]))
+    modes_info = (
+        (np.zeros(0), np.zeros(0))
+        if spectrum is None
+        else (k[spectrum["modes"]], np.asarray(spectrum["energies"]))
+    )
     return _Plan(
-        setup=setup_config(system, step, splitting),
-        run={
-            "steps": steps,
-            "pauses": pauses,
-            "detector": bounds,
-            "seed": seed,
-            "precision": precision,
-            "spectrum": spectrum,
-        },
+        setup=_requests.setup(system, step, splitting),
+        run=_requests.ensemble_run(steps, pauses, bounds, seed, precision, spectrum),
         kinetic=system.kinetic_table(),
         absorption=system.absorption(),
         static=system.static_potential(),
-        disorder=terms,
-        packets=_packet_config(system, packet),
+        disorder=_requests.disorder_terms(system.disorder),
+        packets=_requests.packets(system.grid, packet),
         times=np.asarray(pauses, dtype=float) * step,
         seed=seed,
         modes_info=modes_info,
@@ -468,7 +456,7 @@ def plan(
 
 
 def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
-    run = dict(plan.run, start=start, count=count, threads=threads)
+    run = _requests.share(plan.run, start, count, threads)
     return _core.ensemble_chunks(
         plan.setup, run, plan.kinetic, plan.absorption, plan.static, plan.disorder, plan.packets
     )

@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks, _core, limits
+from .. import _checks, _core, _requests, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, Wavefunction
 from ..specs.system import System
@@ -257,21 +257,6 @@ def initial_phase_space(system: System, packet) -> tuple[float, float]:
     return float(np.sum(rho * system.grid.x)), float(system.hbar * np.sum(phi * system.grid.k) / np.sum(phi))
 
 
-def setup_config(system: System, step: float, splitting: str) -> dict:
-    left_end, right_start = system.layer_bounds()
-    return {
-        "points": system.grid.points,
-        "dx": system.grid.dx,
-        "start": system.grid.start,
-        "hbar": system.hbar,
-        "nonlinearity": system.nonlinearity,
-        "step": step,
-        "splitting": splitting,
-        "left_layer_end": left_end,
-        "right_layer_start": right_start,
-    }
-
-
 def check_system(system) -> None:
     if not isinstance(system, System):
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
@@ -335,20 +320,9 @@ def propagate(
     packet, steps, pauses, bounds, splitting, potential = single
     psi0 = packet.values(system.grid).astype(np.complex128)
     start = initial_phase_space(system, packet) if classical else None
-    model = system.model
-    run_config = {
-        "steps": steps,
-        "pauses": pauses,
-        "keep_snapshots": True,
-        "detector": bounds,
-        "classical": None
-        if start is None
-        else (start[0], start[1], model.kind, getattr(model, "mass", 1.0), getattr(model, "hopping", 1.0)),
-        "precision": precision,
-    }
     out = _core.propagate_one(
-        setup_config(system, step, splitting),
-        run_config,
+        _requests.setup(system, step, splitting),
+        _requests.run(steps, pauses, bounds, start, precision),
         system.kinetic_table(),
         system.absorption(),
         potential,

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import _checks, _core
+from .. import _checks, _core, _requests
 from ..specs.system import System
 
 
@@ -20,7 +20,5 @@ def realize(system: System, seed: int = 0, index: int = 0) -> np.ndarray:
     potential = system.static_potential()
     if system.disorder is None:
         return potential
-    grid = system.grid
-    line = {"points": grid.points, "dx": grid.dx, "start": grid.start}
-    terms = [term.config() for term in system.disorder.terms]
-    return _core.realize(line, terms, potential, seed, index)
+    terms = _requests.disorder_terms(system.disorder)
+    return _core.realize(_requests.line(system.grid), terms, potential, seed, index)

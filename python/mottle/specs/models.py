@@ -7,10 +7,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from .. import _checks
+from .kinds import Kinded
 
 
 @dataclass(frozen=True)
-class Continuum:
+class Continuum(Kinded):
     """A particle of mass ``mass`` with kinetic energy ``hbar**2 k**2 / (2 mass)``."""
 
     hbar: float = 1.0
@@ -20,6 +21,7 @@ class Continuum:
         object.__setattr__(self, "hbar", _checks.positive("hbar", self.hbar))
         object.__setattr__(self, "mass", _checks.positive("mass", self.mass))
 
+    family = "model"
     kind = "continuum"
 
     def kinetic(self, k, dx: float):
@@ -38,7 +40,7 @@ class Continuum:
 
 
 @dataclass(frozen=True)
-class Lattice:
+class Lattice(Kinded):
     """Tight binding on the grid's sites: kinetic energy ``-2 J cos(k a)``, ``a = dx``.
 
     Potentials are sampled at the sites (with on-site disorder this is the
@@ -54,6 +56,7 @@ class Lattice:
         object.__setattr__(self, "hopping", _checks.positive("hopping", self.hopping))
         object.__setattr__(self, "hbar", _checks.positive("hbar", self.hbar))
 
+    family = "model"
     kind = "lattice"
 
     def kinetic(self, k, dx: float):

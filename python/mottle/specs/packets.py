@@ -11,12 +11,13 @@ import numpy as np
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from .grid import Grid
+from .kinds import Kinded
 
 _TAIL = limits.PACKET_TAIL
 
 
 @dataclass(frozen=True)
-class GaussianPacket:
+class GaussianPacket(Kinded):
     """``psi0(x) = (2 pi s**2)**(-1/4) exp(-(x-x0)**2/(4 s**2) + i k0 (x-x0))``.
 
     ``center`` is x0, ``wavenumber`` k0 and ``width`` s the rms width of
@@ -24,6 +25,9 @@ class GaussianPacket:
     the distance ``x - x0`` is taken to the nearest periodic image, and the
     sampled packet is normalized so that ``sum |psi|**2 dx = 1`` exactly.
     """
+
+    family = "packet"
+    kind = "gaussian"
 
     center: float
     wavenumber: float
@@ -128,9 +132,6 @@ class Uniform:
         object.__setattr__(self, "low", low)
         object.__setattr__(self, "high", high)
 
-    def config(self) -> tuple[str, float, float]:
-        return ("uniform", self.low, self.high)
-
     def extremes(self) -> tuple[float, float]:
         return self.low, self.high
 
@@ -150,15 +151,8 @@ class Normal:
         object.__setattr__(self, "mean", _checks.real("Normal mean", self.mean))
         object.__setattr__(self, "std", _checks.positive("Normal std", self.std))
 
-    def config(self) -> tuple[str, float, float]:
-        return ("normal", self.mean, self.std)
-
     def extremes(self) -> tuple[float, float]:
         return self.mean - 6.0 * self.std, self.mean + 6.0 * self.std
-
-
-def _draw_config(value) -> tuple[str, float, float]:
-    return value.config() if isinstance(value, (Uniform, Normal)) else ("fixed", float(value), 0.0)
 
 
 def _extremes(value) -> tuple[float, ...]:
@@ -205,19 +199,11 @@ class RandomPacket:
     def mean_kinetic(self, model, dx: float) -> float:
         return min(packet.mean_kinetic(model, dx) for packet in self.corners())
 
-    def config(self, grid: Grid) -> dict:
-        return {
-            "kind": "gaussian",
-            "center": _draw_config(self.center),
-            "wavenumber": _draw_config(self.wavenumber),
-            "width": _draw_config(self.width),
-        }
-
     def packet(self, seed: int, index: int) -> GaussianPacket:
         """The packet of realization ``index`` of ``seed``."""
-        from .. import _core
+        from .. import _core, _requests
 
-        center, wavenumber, width = _core.draw_packet(self.config(None), seed, index)
+        center, wavenumber, width = _core.draw_packet(_requests.packets(None, self), seed, index)
         return GaussianPacket(center, wavenumber, width)
 
 
@@ -244,12 +230,6 @@ class PacketList:
 
     def mean_kinetic(self, model, dx: float) -> float:
         return min(packet.mean_kinetic(model, dx) for packet in self.packets)
-
-    def config(self, grid: Grid) -> dict:
-        return {
-            "kind": "list",
-            "values": np.stack([p.values(grid) for p in self.packets]).astype(np.complex128),
-        }
 
     def packet(self, seed: int, index: int):
         return self.packets[index % len(self.packets)]

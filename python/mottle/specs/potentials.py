@@ -8,18 +8,25 @@ makes the transmission converge smoothly as the grid is refined.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from .. import _checks
 from ..errors import InvalidParameterError, InvalidTypeError
 from .grid import Grid
+from .kinds import Kinded
 from .models import Continuum, Lattice
 
 
-class Potential:
-    """Base of the deterministic potentials; ``a + b`` is their sum."""
+class Potential(Kinded):
+    """Base of the deterministic potentials; ``a + b`` is their sum.
+
+    A potential is a frozen dataclass with a ``kind``: it is registered (:mod:`mottle.specs.kinds`)
+    and the study files follow from its fields.
+    """
+
+    family = "potential"
 
     def values(self, grid: Grid, model: Continuum | Lattice) -> np.ndarray:
         raise NotImplementedError
@@ -53,6 +60,8 @@ class PotentialSum(Potential):
 class Barrier(Potential):
     """A rectangular barrier (or well, if ``height < 0``) of ``height`` on ``[left, right)``."""
 
+    kind = "barrier"
+
     height: float
     left: float
     right: float
@@ -83,6 +92,8 @@ class Barrier(Potential):
 class Harmonic(Potential):
     """``(1/2) mass frequency**2 (x - center)**2`` (lattice: the band-bottom mass)."""
 
+    kind = "harmonic"
+
     frequency: float
     center: float = 0.0
 
@@ -99,7 +110,9 @@ class Harmonic(Potential):
 class Tabulated(Potential):
     """Potential values given at the grid points (an array of shape ``(points,)``)."""
 
-    table: np.ndarray
+    kind = "tabulated"
+
+    table: np.ndarray = field(metadata={"key": "values", "type": "values"})
 
     def __init__(self, values) -> None:
         if isinstance(values, (str, bytes)):
@@ -111,6 +124,11 @@ class Tabulated(Potential):
 
     def values(self, grid, model):
         return self.table.copy()
+
+    @classmethod
+    def from_entry(cls, entry, tables):
+        """A study file names its table by the SHA-256 the study loaded it under."""
+        return cls(tables[entry["values"]["sha256"]])
 
     def validate(self, grid):
         if self.table.shape != (grid.points,):

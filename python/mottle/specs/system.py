@@ -62,6 +62,7 @@ class System:
                     f"Speckle or a sum), got {type(self.disorder).__name__}"
                 )
             self.disorder.validate(self.grid)
+            self.disorder.validate_model(self.model)
         if self.absorber is not None:
             if not isinstance(self.absorber, Absorber):
                 raise InvalidTypeError(

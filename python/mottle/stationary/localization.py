@@ -27,7 +27,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks, _core
+from .. import _checks, _core, _requests
 from ..analysis.statistics import Stat, stderr
 from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
@@ -63,17 +63,6 @@ def _energies(values) -> tuple[np.ndarray, bool]:
     return array, scalar
 
 
-def _medium(system: System) -> dict:
-    model = system.model
-    return {
-        "model": model.kind,
-        "hbar": model.hbar,
-        "mass": getattr(model, "mass", 1.0),
-        "hopping": getattr(model, "hopping", 1.0),
-        "dx": system.grid.dx,
-    }
-
-
 def _check_memory(realizations: int, energies: int) -> None:
     need = 8 * realizations * energies
     have = _memory_bytes()
@@ -86,11 +75,13 @@ def _check_memory(realizations: int, energies: int) -> None:
 
 
 def _core_inputs(system: System, seed: int, realizations: int, threads: int) -> tuple:
-    grid = system.grid
-    line = {"points": grid.points, "dx": grid.dx, "start": grid.start}
-    terms = [] if system.disorder is None else [term.config() for term in system.disorder.terms]
-    config = {"seed": seed, "start": 0, "count": realizations, "threads": threads}
-    return line, terms, system.static_potential(), _medium(system), config
+    return (
+        _requests.line(system.grid),
+        _requests.disorder_terms(system.disorder),
+        system.static_potential(),
+        _requests.model(system.model),
+        _requests.realizations(seed, realizations, threads),
+    )
 
 
 @dataclass(frozen=True, eq=False)

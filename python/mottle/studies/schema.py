@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InvalidParameterError
+from ..specs import kinds as _kinds
 
 NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE = (
     "a number",
@@ -34,29 +35,25 @@ class Key:
     choices: tuple = ()
 
 
-def _fields(required: tuple[str, ...], optional: dict | None = None, kind: str = NUMBER) -> dict:
-    spec = {name: Key(kind, required=True) for name in required}
-    for name, default in (optional or {}).items():
-        spec[name] = Key(kind, default=default)
-    return spec
+_TYPES = {"number": NUMBER, "integer": INTEGER, "values": VALUES}
 
 
-POTENTIAL_KINDS = {
-    "barrier": _fields(("height", "left", "right")),
-    "harmonic": _fields(("frequency",), {"center": 0.0}),
-    "tabulated": {"values": Key(VALUES, required=True)},
-}
-DISORDER_KINDS = {
-    "white-noise": _fields(("strength", "start", "stop")),
-    "box": _fields(("width", "start", "stop")),
-    "gaussian": _fields(("rms", "correlation_length", "start", "stop")),
-    "speckle": {
-        **_fields(("strength", "correlation_length", "start", "stop")),
-        "sign": Key(INTEGER, default=1),
-    },
-}
+def _keys(cls: type) -> dict[str, Key]:
+    """The study-file keys of a registered spec class: its declared fields (mottle.specs.kinds)."""
+    return {
+        field.key: Key(_TYPES[field.type], required=field.required, default=field.default)
+        for field in _kinds.spec_fields(cls)
+    }
+
+
+POTENTIAL_KINDS = {kind: _keys(cls) for kind, cls in _kinds.kinds("potential").items()}
+DISORDER_KINDS = {kind: _keys(cls) for kind, cls in _kinds.kinds("disorder").items()}
 ARRAYS = {"potential": POTENTIAL_KINDS, "disorder": DISORDER_KINDS}
-MODEL_KEYS = {"continuum": ("hbar", "mass"), "lattice": ("hbar", "hopping")}
+MODELS = {kind: _keys(cls) for kind, cls in _kinds.kinds("model").items()}
+MODEL_KEYS = {kind: tuple(sorted(keys)) for kind, keys in MODELS.items()}
+# The [packet] table describes one Gaussian packet.
+PACKET_KIND = "gaussian"
+_MODEL_SYSTEM_KEYS = {name: key for keys in MODELS.values() for name, key in keys.items()}
 
 SCHEMA: dict[str, dict[str, Key]] = {
     "study": {"title": Key(STRING, default=""), "notes": Key(STRING, default="")},
@@ -65,15 +62,13 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "length": Key(NUMBER, required=True),
         "center": Key(NUMBER, default=0.0),
         "model": Key(STRING, default="continuum", choices=tuple(MODEL_KEYS)),
-        "hbar": Key(NUMBER, default=1.0),
-        "mass": Key(NUMBER, default=1.0),
-        "hopping": Key(NUMBER, default=1.0),
+        **_MODEL_SYSTEM_KEYS,
         "nonlinearity": Key(NUMBER, default=0.0),
         "absorber": Key(TABLE),
         "potential": Key(TABLE),
         "disorder": Key(TABLE),
     },
-    "packet": _fields(("center", "wavenumber", "width")),
+    "packet": _keys(_kinds.kinds("packet")[PACKET_KIND]),
     "run": {
         "duration": Key(NUMBER, required=True),
         "step": Key(NUMBER, required=True),
@@ -432,7 +427,7 @@ def _fill_defaults(resolved: dict) -> dict:
             if key.kind != TABLE and name not in table and key.default is not None:
                 table[name] = key.default
     system = resolved["system"]
-    for name in ("mass", "hopping"):
+    for name in _MODEL_SYSTEM_KEYS:
         if (
             name not in MODEL_KEYS.get(system["model"], (name,))
             and system.get(name) == SCHEMA["system"][name].default
@@ -461,13 +456,13 @@ def _required(resolved: dict, problems: list[tuple[tuple[str, ...], str]]) -> No
         problems.append((("system", "absorber", "width"), f"is required ({NUMBER})"))
     system = resolved["system"]
     model = system.get("model", "continuum")
-    other = "lattice" if model == "continuum" else "continuum"
-    for name in MODEL_KEYS[other]:
-        if name not in MODEL_KEYS[model] and name in system:
-            problems.append(
-                (
-                    ("system", name),
-                    f"applies to the {other} model, but model is {model!r} "
-                    f"(it takes {', '.join(MODEL_KEYS[model])})",
+    for other, names in MODEL_KEYS.items():
+        for name in names:
+            if other != model and name not in MODEL_KEYS[model] and name in system:
+                problems.append(
+                    (
+                        ("system", name),
+                        f"applies to the {other} model, but model is {model!r} "
+                        f"(it takes {', '.join(MODEL_KEYS[model])})",
+                    )
                 )
-            )

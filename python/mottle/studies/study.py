@@ -82,39 +82,22 @@ def point_seed(seed: int, parameters: Mapping[str, object]) -> int:
 def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
     """The :class:`~mottle.System` of a resolved parameter set (raises the spec classes' own errors)."""
     from ..specs.absorber import Absorber
-    from ..specs.disorder import BoxDisorder, GaussianDisorder, Speckle, WhiteNoise
     from ..specs.grid import Grid
-    from ..specs.models import Continuum, Lattice
-    from ..specs.potentials import Barrier, Harmonic, Tabulated
+    from ..specs.kinds import kinds
     from ..specs.system import System
 
     system = resolved["system"]
     grid = _in(("system",), lambda: Grid(system["points"], system["length"], system.get("center", 0.0)))
-    if system.get("model", "continuum") == "lattice":
-        model = _in(
-            ("system",), lambda: Lattice(hopping=system.get("hopping", 1.0), hbar=system.get("hbar", 1.0))
-        )
-    else:
-        model = _in(
-            ("system",), lambda: Continuum(hbar=system.get("hbar", 1.0), mass=system.get("mass", 1.0))
-        )
-    makers = {
-        "barrier": lambda e: Barrier(e["height"], e["left"], e["right"]),
-        "harmonic": lambda e: Harmonic(e["frequency"], e.get("center", 0.0)),
-        "tabulated": lambda e: Tabulated(tables[e["values"]["sha256"]]),
-        "white-noise": lambda e: WhiteNoise(e["strength"], e["start"], e["stop"]),
-        "box": lambda e: BoxDisorder(e["width"], e["start"], e["stop"]),
-        "gaussian": lambda e: GaussianDisorder(e["rms"], e["correlation_length"], e["start"], e["stop"]),
-        "speckle": lambda e: Speckle(
-            e["strength"], e["correlation_length"], e["start"], e["stop"], e.get("sign", 1)
-        ),
-    }
+    model_class = kinds("model")[system.get("model", "continuum")]
+    model = _in(("system",), lambda: model_class.from_entry(system, tables))
+    makers = {name: kinds(name) for name in ARRAYS}
     parts = {}
     for name in ARRAYS:
         total = None
         for index, entry in enumerate(system.get(name, [])):
             where = ("system", name, str(index))
-            term = _in(where, lambda entry=entry: makers[entry["kind"]](entry), entry)
+            maker = makers[name][entry["kind"]]
+            term = _in(where, lambda entry=entry, maker=maker: maker.from_entry(entry, tables), entry)
             _in(where, lambda term=term: term.validate(grid), entry)
             total = term if total is None else total + term
         parts[name] = total
@@ -138,10 +121,11 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
 
 def build_packet(resolved: Mapping, system=None):
     """The :class:`~mottle.GaussianPacket` of a resolved parameter set, checked against the grid if given."""
-    from ..specs.packets import GaussianPacket
+    from ..specs.kinds import kinds
+    from .schema import PACKET_KIND
 
     spec = resolved["packet"]
-    packet = _in(("packet",), lambda: GaussianPacket(spec["center"], spec["wavenumber"], spec["width"]), spec)
+    packet = _in(("packet",), lambda: kinds("packet")[PACKET_KIND].from_entry(spec, {}), spec)
     if system is not None:
         _in(("packet",), lambda: packet.validate(system.grid), spec)
     return packet

@@ -1,0 +1,215 @@
+"""The requests mottle sends to the Rust core, built here and nowhere else.
+
+Each function returns one of the TypedDicts that ``_core.pyi`` declares (keyed
+by ``kind`` where a request has several shapes); the core reads them into
+typed Rust structs and enums (rust/src/bindings/request.rs), so a missing,
+unknown or mistyped field is an :class:`~mottle.InvalidTypeError` naming it.
+Disorder terms and kinetic models are derived from their spec classes' declared
+fields (:mod:`mottle.specs.kinds`): the request is the kind and the fields.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, cast
+
+import numpy as np
+
+from .specs import kinds
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from ._core import (
+        _ClassicalStart,
+        _Draw,
+        _EnsembleRun,
+        _Line,
+        _Model,
+        _Packets,
+        _Particles,
+        _Precision,
+        _Realizations,
+        _Run,
+        _Setup,
+        _Spectrum,
+        _Splitting,
+        _Term,
+    )
+    from .specs.disorder import Disorder
+    from .specs.grid import Grid
+    from .specs.models import Continuum, Lattice
+    from .specs.system import System
+
+
+def line(grid: Grid) -> _Line:
+    """Where the grid's points are."""
+    return {"points": int(grid.points), "dx": float(grid.dx), "start": float(grid.start)}
+
+
+def model(spec: Continuum | Lattice) -> _Model:
+    """The kinetic-energy model: its kind and declared fields."""
+    return cast("_Model", {"kind": spec.kind, **kinds.values(spec)})
+
+
+def disorder_terms(disorder: Disorder | None) -> list[_Term]:
+    """One request per independent term: its kind and declared fields."""
+    if disorder is None:
+        return []
+    return [cast("_Term", {"kind": term.kind, **kinds.values(term)}) for term in disorder.terms]
+
+
+def setup(system: System, step: float, splitting: _Splitting) -> _Setup:
+    """The grid, model, step and absorbing layers of a run."""
+    left_end, right_start = system.layer_bounds()
+    grid = system.grid
+    return {
+        "points": int(grid.points),
+        "dx": float(grid.dx),
+        "start": float(grid.start),
+        "model": model(system.model),
+        "nonlinearity": float(system.nonlinearity),
+        "step": float(step),
+        "splitting": splitting,
+        "left_layer_end": left_end,
+        "right_layer_start": right_start,
+    }
+
+
+def run(
+    steps: int,
+    pauses: Sequence[int],
+    detector: tuple[int, int] | None,
+    classical: tuple[float, float] | None,
+    precision: _Precision,
+) -> _Run:
+    """A single run: steps, pauses, detector, where its classical particle starts (or None)."""
+    start: _ClassicalStart | None = (
+        None if classical is None else {"position": float(classical[0]), "momentum": float(classical[1])}
+    )
+    return {
+        "steps": int(steps),
+        "pauses": [int(p) for p in pauses],
+        "keep_snapshots": True,
+        "detector": detector,
+        "classical": start,
+        "precision": precision,
+    }
+
+
+def spectrum(
+    probes: Sequence[int],
+    positions: Sequence[float],
+    modes: Sequence[int],
+    wavenumbers: Sequence[float],
+    energies: Sequence[float],
+    velocities: Sequence[float],
+) -> _Spectrum:
+    """Where and at which modes an ensemble records the transmitted wave."""
+    return {
+        "probes": [int(p) for p in probes],
+        "positions": [float(x) for x in positions],
+        "modes": [int(m) for m in modes],
+        "wavenumbers": [float(k) for k in wavenumbers],
+        "energies": [float(e) for e in energies],
+        "velocities": [float(v) for v in velocities],
+    }
+
+
+def ensemble_run(
+    steps: int,
+    pauses: Sequence[int],
+    detector: tuple[int, int] | None,
+    seed: int,
+    precision: _Precision,
+    spectrum: _Spectrum | None,
+    start: int = 0,
+    count: int = 0,
+    threads: int = 1,
+) -> _EnsembleRun:
+    """An ensemble's share of work: realizations ``start .. start + count`` on ``threads`` threads."""
+    return {
+        "steps": int(steps),
+        "pauses": [int(p) for p in pauses],
+        "detector": detector,
+        "seed": int(seed),
+        "start": int(start),
+        "count": int(count),
+        "threads": int(threads),
+        "precision": precision,
+        "spectrum": spectrum,
+    }
+
+
+def share(request: _EnsembleRun, start: int, count: int, threads: int) -> _EnsembleRun:
+    """The same ensemble run for realizations ``start .. start + count``."""
+    return {**request, "start": int(start), "count": int(count), "threads": int(threads)}
+
+
+def draw(value: object) -> _Draw:
+    """A packet parameter: a number, or a :class:`~mottle.Uniform` / :class:`~mottle.Normal` draw."""
+    from .specs.packets import Normal, Uniform
+
+    if isinstance(value, Uniform):
+        return {"kind": "uniform", "low": value.low, "high": value.high}
+    if isinstance(value, Normal):
+        return {"kind": "normal", "mean": value.mean, "std": value.std}
+    return {"kind": "fixed", "value": float(cast("float", value))}
+
+
+def packets(grid: Grid | None, packet: object) -> _Packets:
+    """The initial states: one wavefunction, drawn Gaussian packets, or a list used in turn."""
+    from .specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
+
+    if isinstance(packet, RandomPacket):
+        return {
+            "kind": "gaussian",
+            "center": draw(packet.center),
+            "wavenumber": draw(packet.wavenumber),
+            "width": draw(packet.width),
+        }
+    if grid is None:
+        raise ValueError("fixed and listed packets need the grid")
+    if isinstance(packet, (GaussianPacket, Wavefunction)):
+        return {"kind": "fixed", "values": packet.values(grid).astype(np.complex128)}
+    if isinstance(packet, PacketList):
+        values = np.stack([p.values(grid) for p in packet.packets]).astype(np.complex128)
+        return {"kind": "list", "values": values}
+    raise TypeError(f"no core request for a packet of type {type(packet).__name__}")
+
+
+def realizations(seed: int, count: int, threads: int, start: int = 0) -> _Realizations:
+    """Which realizations, on how many threads."""
+    return {"seed": int(seed), "start": int(start), "count": int(count), "threads": int(threads)}
+
+
+def particles(
+    system: System,
+    packet_center: float,
+    packet_width: float,
+    momentum: float,
+    momentum_spread: float,
+    count: int,
+    seed: int,
+    index: int,
+    step: float,
+    steps: int,
+    pauses: Sequence[int],
+    threads: int,
+) -> _Particles:
+    """A classical ensemble: particles drawn from a packet's Wigner distribution, and their run."""
+    left_end, right_start = system.layer_bounds()
+    return {
+        "center": float(packet_center),
+        "position_spread": float(packet_width),
+        "momentum": float(momentum),
+        "momentum_spread": float(momentum_spread),
+        "particles": int(count),
+        "seed": int(seed),
+        "index": int(index),
+        "step": float(step),
+        "steps": int(steps),
+        "pauses": [int(p) for p in pauses],
+        "left_layer_end": left_end,
+        "right_layer_start": right_start,
+        "threads": int(threads),
+    }
