@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import numbers
 import os
+from typing import Any
 
 import numpy as np
 
@@ -46,7 +47,7 @@ def integer(name: str, value: object, minimum: int) -> int:
     elif isinstance(value, numbers.Real):
         if not math.isfinite(float(value)) or float(value) != math.floor(float(value)):
             raise InvalidParameterError(f"{name} must be a whole number, got {value!r}")
-        result = int(value)
+        result = int(float(value))
     else:
         raise InvalidTypeError(f"{name} must be an integer, got {value!r} of type {type(value).__name__}")
     if result < minimum:
@@ -54,7 +55,7 @@ def integer(name: str, value: object, minimum: int) -> int:
     return result
 
 
-def real_array(name: str, values: object, shape: tuple[int, ...], dtype=np.float64) -> np.ndarray:
+def real_array(name: str, values: Any, shape: tuple[int, ...], dtype=np.float64) -> np.ndarray:
     """A finite array of the given shape, copied so later writes by the caller do not reach us."""
     if not np.issubdtype(np.dtype(dtype), np.complexfloating) and np.iscomplexobj(values):
         # numpy would drop the imaginary parts with only a ComplexWarning.

@@ -17,7 +17,7 @@ import numpy as np
 from .specs import kinds
 
 if TYPE_CHECKING:
-    from collections.abc import Sequence
+    from collections.abc import Iterable, Sequence
 
     from ._core import (
         _ClassicalStart,
@@ -58,7 +58,7 @@ def disorder_terms(disorder: Disorder | None) -> list[_Term]:
     return [cast("_Term", {"kind": term.kind, **kinds.values(term)}) for term in disorder.terms]
 
 
-def setup(system: System, step: float, splitting: _Splitting) -> _Setup:
+def setup(system: System, step: float, splitting: str) -> _Setup:
     """The grid, model, step and absorbing layers of a run."""
     left_end, right_start = system.layer_bounds()
     grid = system.grid
@@ -69,7 +69,7 @@ def setup(system: System, step: float, splitting: _Splitting) -> _Setup:
         "model": model(system.model),
         "nonlinearity": float(system.nonlinearity),
         "step": float(step),
-        "splitting": splitting,
+        "splitting": cast("_Splitting", splitting),
         "left_layer_end": left_end,
         "right_layer_start": right_start,
     }
@@ -80,7 +80,7 @@ def run(
     pauses: Sequence[int],
     detector: tuple[int, int] | None,
     classical: tuple[float, float] | None,
-    precision: _Precision,
+    precision: str,
 ) -> _Run:
     """A single run: steps, pauses, detector, where its classical particle starts (or None)."""
     start: _ClassicalStart | None = (
@@ -92,17 +92,17 @@ def run(
         "keep_snapshots": True,
         "detector": detector,
         "classical": start,
-        "precision": precision,
+        "precision": cast("_Precision", precision),
     }
 
 
 def spectrum(
-    probes: Sequence[int],
-    positions: Sequence[float],
-    modes: Sequence[int],
-    wavenumbers: Sequence[float],
-    energies: Sequence[float],
-    velocities: Sequence[float],
+    probes: Iterable[int],
+    positions: Iterable[float],
+    modes: Iterable[int],
+    wavenumbers: Iterable[float],
+    energies: Iterable[float],
+    velocities: Iterable[float],
 ) -> _Spectrum:
     """Where and at which modes an ensemble records the transmitted wave."""
     return {
@@ -120,7 +120,7 @@ def ensemble_run(
     pauses: Sequence[int],
     detector: tuple[int, int] | None,
     seed: int,
-    precision: _Precision,
+    precision: str,
     spectrum: _Spectrum | None,
     start: int = 0,
     count: int = 0,
@@ -135,7 +135,7 @@ def ensemble_run(
         "start": int(start),
         "count": int(count),
         "threads": int(threads),
-        "precision": precision,
+        "precision": cast("_Precision", precision),
         "spectrum": spectrum,
     }
 

@@ -181,6 +181,7 @@ def _barrier_packet() -> Outcome:
     system = mo.System(mo.Grid(8192, 400.0), potential=mo.Barrier(1.0, 0.0, 1.0), absorber=mo.Absorber(30.0))
     run = mo.propagate(system, mo.GaussianPacket(-60.0, wavenumber, width), 80.0, 0.01, detector=(0.0, 1.0))
     reference = packet_average(lambda k: barrier_transmission(k**2 / 2.0, 1.0, 1.0), wavenumber, width)
+    assert run.transmission is not None  # a detector was given
     return Outcome(run.transmission, float(reference), 1e-3, note="reference: integral |phi(k)|^2 T(k) dk")
 
 

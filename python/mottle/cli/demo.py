@@ -98,6 +98,8 @@ def barrier_warm_up() -> list[str]:
     packet = GaussianPacket(center=-70.0, wavenumber=1.2, width=8.0)
     run = propagate(system, packet, 300.0, 0.02, detector=(0.0, 1.5), snapshots=[100.0, 300.0])
     exact = packet_average(lambda k: barrier_transmission(k**2 / 2.0, 0.8, 1.5), 1.2, 8.0)
+    assert run.transmission is not None and run.reflection is not None  # a detector was given
+    assert run.classical_momentum is not None  # classical=True is the default
     accounting = run.norm + run.absorbed_left + run.absorbed_right
     # At t = 100 the particle has met the barrier and not yet reached an absorbing layer.
     fate = "reflected" if run.classical_momentum[0] < 0 else "transmitted"
@@ -142,7 +144,9 @@ def run_demo(
         "with its sign (Born is the mean of both signs):",
     ]
     for fit in written.fits:
-        strength = float(re.search(r"strength=([-+0-9.eE]+)", fit.label).group(1))
+        found = re.search(r"strength=([-+0-9.eE]+)", fit.label)
+        assert found is not None, fit.label  # the study labels its fits by strength
+        strength = float(found.group(1))
         lines.append(
             f"  {fit.label}: fitted xi = {fit.fit.localization_length:.3g} ± {fit.fit.stderr:.2g}, "
             f"Born xi = {born_xi(strength, 0.5, 1.0):.3g}"

@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass, field, fields
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -177,7 +177,7 @@ class EnsembleResult:
         samples = {
             key.split("/", 1)[1]: np.asarray(v) for key, v in arrays.items() if key.startswith("samples/")
         }
-        values = {}
+        values: dict[str, Any] = {}
         for item in fields(cls):
             if item.name == "samples":
                 continue

@@ -56,8 +56,8 @@ class Run:
     absorbed_rights: np.ndarray
     reflections: np.ndarray | None
     transmissions: np.ndarray | None
-    classical_position: np.ndarray
-    classical_momentum: np.ndarray
+    classical_position: np.ndarray | None
+    classical_momentum: np.ndarray | None
     x: np.ndarray
     dx: float
 

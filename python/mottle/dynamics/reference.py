@@ -41,6 +41,7 @@ import numpy as np
 
 from .. import _checks
 from ..errors import InvalidParameterError
+from ..specs.models import Continuum
 from ..specs.system import System
 from .propagate import Run, check_system, initial_phase_space, prepare_single_run
 
@@ -184,8 +185,8 @@ class _Particle:
         self.start, self.dx, self.points = grid.start, grid.dx, grid.points
         self.left_end, self.right_start = system.layer_bounds()
         self.position, self.momentum, self.absorbed = position, momentum, False
-        self.mass = model.mass if model.kind == "continuum" else None
-        if model.kind == "continuum":
+        self.mass = model.mass if isinstance(model, Continuum) else None
+        if isinstance(model, Continuum):
             mass = model.mass
             self.velocity = lambda p: p / mass
             self.kinetic_energy = lambda p: p * p / (2.0 * mass)
@@ -232,6 +233,7 @@ class _Particle:
         cell = math.floor(u)
         offset = (u - cell) * self.dx
         momentum, remaining, mass = self.momentum, duration, self.mass
+        assert mass is not None  # the parabolic steps are the continuum's
         while remaining > 0.0 and not self.absorbed:
             velocity = momentum / mass
             if offset <= 0.0 and (velocity < 0.0 or (velocity == 0.0 and self.cell_force(cell) < 0.0)):

@@ -30,10 +30,14 @@ import time
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from .. import _checks
 from ..errors import InvalidParameterError, MottleError
 from .study import StudyPoint, build_packet, build_system, run_arguments
+
+if TYPE_CHECKING:
+    from ..dynamics.ensemble import EnsemblePartial
 
 # A worker killed while running a task makes every task on it "suspicious"; Dask gives up on
 # a task after this many such deaths (its default is 3, low for long runs on preemptible nodes).
@@ -46,7 +50,7 @@ class TaskOutput:
     """What a task sends back: the partial and where and when it ran."""
 
     index: int
-    partial: object
+    partial: EnsemblePartial
     began: float
     ended: float
     elapsed: float
@@ -78,7 +82,7 @@ def _worker_threads() -> int:
 
         worker = get_worker()
         state = getattr(worker, "state", None)
-        concurrent = int(getattr(state, "nthreads", None) or worker.nthreads)
+        concurrent = int(getattr(state, "nthreads", None) or worker.nthreads)  # type: ignore[attr-defined]
     except (ImportError, ValueError, AttributeError):
         concurrent = 1
     return max(1, _checks.default_threads() // max(concurrent, 1))

@@ -16,7 +16,7 @@ from .study import Study, StudyPoint, load_study, short_names
 class StudyInterrupted(KeyboardInterrupt):
     """Ctrl-C during :func:`run_study`: the points finished before it are in the store."""
 
-    def __init__(self, store: os.PathLike, done: int, total: int):
+    def __init__(self, store: str | os.PathLike, done: int, total: int):
         self.store, self.done, self.total = store, done, total
         super().__init__(
             f"interrupted: {done} of {total} points are saved in {store}; "
@@ -173,7 +173,7 @@ def _consume(batches, writer: StoreWriter, display, total: int, names) -> None:
     try:
         from distributed import KilledWorker
     except ImportError:
-        KilledWorker = ()
+        KilledWorker = ()  # type: ignore[misc,assignment]
     try:
         for batch in batches:
             writer.commit(

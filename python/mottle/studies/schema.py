@@ -10,6 +10,7 @@ import difflib
 import json
 import re
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -213,7 +214,7 @@ def _describe(value: object) -> str:
     return f"{value!r} of type {type(value).__name__}"
 
 
-def _normalize(key: Key, value: object) -> object:
+def _normalize(key: Key, value: Any) -> object:
     """The canonical form of a value that passed its type check: floats for numbers, ints for integers."""
     if key.kind == NUMBER:
         return float(value)
@@ -382,6 +383,7 @@ def _sweep_values(raw: object, key: Key, path: tuple[str, ...], problems: _Probl
         if scale == "log" and not (start > 0 and stop > 0):
             problems.add(where, f"a log range needs start > 0 and stop > 0, got start={start}, stop={stop}")
             return None
+        values: list[Any]
         if count == 1:
             values = [float(start)]
         elif scale == "log":

@@ -48,11 +48,15 @@ import warnings
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import MottleError
-from .study import Study, differences, point_label
+from .study import Study, StudyPoint, differences, point_label
+
+if TYPE_CHECKING:
+    from ..dynamics.ensemble import EnsembleResult
 
 FORMAT = "mottle-results-store"
 FORMAT_VERSION = 1
@@ -279,9 +283,10 @@ class Store:
         path = Path(path)
         with open(path, "w", newline="", encoding="utf-8") as handle:
             writer = csv.writer(handle)
-            writer.writerow(rows.dtype.names)
+            names = rows.dtype.names or ()
+            writer.writerow(names)
             for row in rows:
-                writer.writerow([_csv_cell(row[name]) for name in rows.dtype.names])
+                writer.writerow([_csv_cell(row[name]) for name in names])
         return path
 
     def __repr__(self) -> str:
@@ -334,7 +339,7 @@ class _Lock:
         try:
             import fcntl
         except ImportError:  # not POSIX: fall back to exclusive creation (a crash leaves it behind)
-            fcntl = None
+            fcntl = None  # type: ignore[assignment]
         while True:
             if fcntl is None:
                 try:
@@ -415,8 +420,8 @@ def _fsync_directory(directory: Path) -> None:
 class Finished:
     """A point ready to be committed: its result and how long it took where."""
 
-    point: object
-    result: object
+    point: StudyPoint
+    result: EnsembleResult
     wall_time: float
     compute_time: float
     host: str

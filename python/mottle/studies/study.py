@@ -38,6 +38,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import os
 import re
 import warnings
 from collections.abc import Mapping
@@ -433,7 +434,7 @@ def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> S
     return Study(text, source, document, sweep, tuple(points), tables)
 
 
-def load_study(path: str | Path) -> Study:
+def load_study(path: str | os.PathLike) -> Study:
     """Read and validate a study file; raises :class:`StudyError` listing every problem found."""
     path = Path(path)
     try:
