@@ -129,7 +129,13 @@ class _Speckle(TypedDict):
     start: float
     stop: float
 
-_Term = _WhiteNoise | _Box | _Gaussian | _Speckle
+class _Cauchy(TypedDict):
+    kind: Literal["cauchy"]
+    width: float
+    start: float
+    stop: float
+
+_Term = _WhiteNoise | _Box | _Gaussian | _Speckle | _Cauchy
 
 class _FixedDraw(TypedDict):
     kind: Literal["fixed"]

@@ -20,6 +20,8 @@ use rustfft::{Fft, FftPlanner};
 use crate::error::{invalid, CoreError};
 use crate::random::Stream;
 
+mod cauchy;
+
 /// One random model and its region `[start, stop)`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Term {
@@ -44,6 +46,10 @@ pub enum Kind {
     Speckle {
         strength: f64,
         correlation_length: f64,
+    },
+    /// Lorentzian on-site values of half-width `width` (see `cauchy`).
+    Cauchy {
+        width: f64,
     },
 }
 
@@ -127,6 +133,10 @@ impl Realizer {
                 }
                 Kind::Box { width } => {
                     positive("box width", width)?;
+                    None
+                }
+                Kind::Cauchy { width } => {
+                    positive("cauchy width", width)?;
                     None
                 }
                 Kind::Gaussian {
@@ -235,6 +245,7 @@ impl Realizer {
                         .iter_mut()
                         .for_each(|v| *v += width * (stream.uniform() - 0.5));
                 }
+                (Kind::Cauchy { width }, _) => cauchy::add(&mut stream, width, values),
                 (Kind::Gaussian { .. }, Some(filtered)) => {
                     let buffer = &mut self.buffer[..filtered.length];
                     buffer

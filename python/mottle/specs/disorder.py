@@ -264,5 +264,48 @@ class Speckle(Disorder):
         )
 
 
+@dataclass(frozen=True)
+class CauchyDisorder(Disorder):
+    """Cauchy (Lloyd) disorder: independent values at each site with the Lorentzian density
+    ``(width/pi) / (v**2 + width**2)``, half-width at half-maximum ``width``.
+
+    Lattice only: its variance is infinite, so it has no correlation function,
+    no power spectrum and no Born prediction. Its Lyapunov exponent is known
+    exactly at any strength instead (Ishii, Prog. Theor. Phys. Suppl. 53, 77
+    (1973); Thouless, J. Phys. C 5, 77 (1972)): per site,
+    ``cosh gamma = [sqrt((2J + E)**2 + width**2) + sqrt((2J - E)**2 + width**2)] / (4J)``.
+    Values are drawn by the inverse distribution, ``width * tan(pi (u - 1/2))``.
+    """
+
+    kind = "cauchy"
+
+    width: float
+    start: float
+    stop: float
+
+    def __post_init__(self):
+        object.__setattr__(self, "width", _checks.positive("CauchyDisorder width", self.width))
+        _region(self)
+
+    def _no_moments(self, what: str):
+        return InvalidParameterError(
+            f"CauchyDisorder has infinite variance, so no {what} (nor a Born prediction): "
+            "mottle.lyapunov gives its exact gamma"
+        )
+
+    def correlation(self, x, dx=None):
+        raise self._no_moments("correlation function")
+
+    def power_spectrum(self, q, dx=None):
+        raise self._no_moments("power spectrum")
+
+    def validate_model(self, model):
+        if model.kind != "lattice":
+            raise InvalidParameterError(
+                f"CauchyDisorder is defined on lattice sites only, but the model is {model.kind!r}: "
+                "use model=mottle.Lattice(...)"
+            )
+
+
 # The public models: mottle's namespace takes them from here.
-__all__ = ["BoxDisorder", "GaussianDisorder", "Speckle", "WhiteNoise"]
+__all__ = ["BoxDisorder", "CauchyDisorder", "GaussianDisorder", "Speckle", "WhiteNoise"]

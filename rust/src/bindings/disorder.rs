@@ -34,6 +34,7 @@ tagged! {
         "box" => Box { width: f64, start: f64, stop: f64 },
         "gaussian" => Gaussian { rms: f64, correlation_length: f64, start: f64, stop: f64 },
         "speckle" => Speckle { strength: f64, correlation_length: f64, sign: i64, start: f64, stop: f64 },
+        "cauchy" => Cauchy { width: f64, start: f64, stop: f64 },
     }
 }
 
@@ -46,6 +47,7 @@ impl TermRequest {
                 stop,
             } => (Kind::WhiteNoise { strength }, start, stop),
             TermRequest::Box { width, start, stop } => (Kind::Box { width }, start, stop),
+            TermRequest::Cauchy { width, start, stop } => (Kind::Cauchy { width }, start, stop),
             TermRequest::Gaussian {
                 rms,
                 correlation_length,
