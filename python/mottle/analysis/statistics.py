@@ -4,12 +4,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
 
-def stderr(samples, axis: int = 0) -> np.ndarray | float:
+def stderr(samples, axis: int = 0) -> Any:
     """Standard error of the mean along ``axis``: unbiased (n - 1) std over sqrt(n), NaN for n < 2.
+
+    A float for a 1-D sample, an array of the remaining axes otherwise (hence ``Any`` for mypy).
 
     The one estimator of mottle's error bars (``Stat``, spectra, ``target_stderr``, fits).
     """
