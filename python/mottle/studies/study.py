@@ -11,11 +11,10 @@ points are the Cartesian product, the first key varying slowest.
 
 Keys (defaults in brackets): ``[system]`` points, length, center [0], model
 ["continuum" or "lattice"], hbar [1], mass [1] (continuum), hopping [1]
-(lattice), nonlinearity [0], absorber {width, strength}; potential kinds
-barrier {height, left, right}, harmonic {frequency, center}, tabulated
-{values: a list or a .npy file, read without pickles}; disorder kinds
-white-noise {strength}, box {width}, gaussian {rms, correlation_length},
-speckle {strength, correlation_length, sign [1]}, each with start and stop.
+(lattice), nonlinearity [0], absorber {width, strength}; one potential or
+disorder entry per registered spec class (:mod:`mottle.specs.kinds`), its
+``kind`` and its fields as keys (tabulated values: a list or a .npy file, read
+without pickles); the kinds and their keys are listed at the end.
 ``[packet]`` center, wavenumber, width. ``[run]`` duration, step,
 realizations, seed [0], seeds ["per-point"], order [2], splitting ["strang" or
 "blanes-moan" by order; "yoshida" on request], detector [the
@@ -59,6 +58,24 @@ from .schema import (
     _required,
     _sweep_values,
 )
+
+
+def _kinds_summary() -> str:
+    from ..specs.kinds import kinds, spec_fields
+
+    lines = ["", "", "Kinds (derived from the registered spec classes):", ""]
+    for family in ("potential", "disorder"):
+        for kind, cls in kinds(family).items():
+            keys = ", ".join(
+                entry.key if entry.required else f"{entry.key} [{entry.default}]"
+                for entry in spec_fields(cls)
+            )
+            lines.append(f"- {family} ``{kind}`` (:class:`mottle.{cls.__name__}`): {keys}")
+    return "\n".join(lines) + "\n"
+
+
+__doc__ = (__doc__ or "") + _kinds_summary()
+
 
 # --------------------------------------------------------------------------- points
 
