@@ -267,20 +267,34 @@ def test_report_draws_the_stored_numbers(workspace, in_process):
         assert np.isclose(fit.fit.localization_length, -2 / slope, rtol=1e-9)
         assert f"xi = {fit.fit.localization_length:.4g}" in summary
 
-    for quantity, figure in (
-        ("density", report.density_figure(store)),
-        ("momentum", report.momentum_figure(store)),
-    ):
-        assert len(figure.axes) == 2  # one panel per snapshot
-        for snapshot, ax in enumerate(figure.axes):
-            lines = ax.get_lines()
-            assert len(lines) == 6
-            for line, point in zip(lines, store.points, strict=True):
-                x, y = line.get_data()
-                expected_x = point.result.x if quantity == "density" else point.result.k
-                assert np.array_equal(x, expected_x)
-                assert np.array_equal(y, getattr(point.result, quantity)[snapshot])
-        assert (figure.axes[0].get_yscale() == "log") == (quantity == "density")
+    figure = report.momentum_figure(store)
+    assert len(figure.axes) == 2  # one panel per snapshot
+    for snapshot, ax in enumerate(figure.axes):
+        lines = ax.get_lines()
+        assert len(lines) == 6
+        for line, point in zip(lines, store.points, strict=True):
+            x, y = line.get_data()
+            assert np.array_equal(x, point.result.k)
+            assert np.array_equal(y, point.result.momentum[snapshot])
+    assert figure.axes[0].get_yscale() == "linear"
+
+    # The density: one panel per point, one line per snapshot, the disorder and the layers shaded.
+    figure = report.density_figure(store)
+    assert len(figure.axes) == 6
+    for ax, point in zip(figure.axes, store.points, strict=True):
+        assert ax.get_yscale() == "log"
+        lines = ax.get_lines()
+        assert len(lines) == 2
+        for snapshot, line in enumerate(lines):
+            x, y = line.get_data()
+            assert np.array_equal(x, point.result.x)
+            assert np.array_equal(y, point.result.density[snapshot])
+        spans = sorted(
+            tuple(np.round(patch.get_x() + np.array([0.0, patch.get_width()]), 9)) for patch in ax.patches
+        )
+        stop = point.resolved["system"]["disorder"][0]["stop"]
+        assert spans == [(-100.0, -70.0), (0.0, stop), (70.0, 100.0)]
+    figure.savefig(workspace / "density-check.png", dpi=80)
 
 
 def test_dry_run_lists_points_and_runs_nothing(workspace):

@@ -180,7 +180,7 @@ def test_progress_reports_between_chunks():
         ({"target_stderr": -1.0}, "target_stderr must be > 0"),
         ({"precision": "half"}, "precision must be one of"),
         ({"order": 3}, "order must be 2 or 4"),
-        ({"step": 0.07}, "not a whole number of steps"),
+        ({"detector": (0.0, 900.0)}, r"detector \(0, 900\) leaves the box"),
     ],
 )
 def test_bad_ensemble_arguments(options, message):

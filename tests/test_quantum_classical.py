@@ -91,7 +91,7 @@ def test_classical_ensemble_refuses_bad_input():
         mo.classical_ensemble(system, mo.Wavefunction(np.ones(256)), 1.0, 0.1, 10)
     with pytest.raises(mo.InvalidParameterError, match="particles"):
         mo.classical_ensemble(system, packet, 1.0, 0.1, 0)
-    with pytest.raises(mo.InvalidParameterError, match="whole number"):
-        mo.classical_ensemble(system, packet, 1.0, 0.3, 10)
+    with pytest.raises(mo.InvalidParameterError, match=r"leaves the box \[-12.8, 12.8\]"):
+        mo.classical_ensemble(system, packet, 1.0, 0.1, 10, detector=(0.0, 900.0))
     with pytest.raises(mo.InvalidParameterError, match="detector"):
         mo.classical_ensemble(system, packet, 1.0, 0.1, 10, detector=(2.0, 1.0))

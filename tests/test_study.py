@@ -233,9 +233,9 @@ BAD = {
         ("step = 0.05\n", ""),
         r"s.toml:\d+: run.step: is required \(a number\)",
     ),
-    "duration not a whole number of steps": (
-        ("step = 0.05", "step = 0.07"),
-        r"run.step: duration 20.0 is not a whole number of steps of 0.07",
+    "detector outside the box": (
+        ("step = 0.05", "step = 0.05\ndetector = [0.0, 900.0]"),
+        r"run.detector: detector \(0, 900\) leaves the box \[-100, 100\]",
     ),
     "snapshot beyond the run": (
         ("snapshots = [10.0, 20.0]", "snapshots = [10.0, 25.0]"),

@@ -21,7 +21,13 @@ from .dynamics.ensemble import (
 )
 from .dynamics.propagate import Run, propagate
 from .dynamics.realize import realize
-from .errors import InvalidParameterError, InvalidTypeError, MottleError, UnderResolvedWarning
+from .errors import (
+    InvalidParameterError,
+    InvalidTypeError,
+    MottleError,
+    StepChangedWarning,
+    UnderResolvedWarning,
+)
 from .specs import disorder as _disorder
 from .specs.absorber import Absorber
 from .specs.disorder import *  # noqa: F403 (every disorder model, listed once in its module)
@@ -62,6 +68,7 @@ __all__ = [
     "RandomPacket",
     "Run",
     "Stat",
+    "StepChangedWarning",
     "Store",
     "StoreError",
     "Study",

@@ -78,6 +78,7 @@ class _ClassicalStart(TypedDict):
 class _Run(TypedDict):
     steps: int
     pauses: list[int]
+    offsets: list[float]
     keep_snapshots: bool
     detector: tuple[int, int] | None
     classical: _ClassicalStart | None
@@ -94,6 +95,7 @@ class _Spectrum(TypedDict):
 class _EnsembleRun(TypedDict):
     steps: int
     pauses: list[int]
+    offsets: list[float]
     detector: tuple[int, int] | None
     seed: int
     start: int
@@ -186,6 +188,7 @@ class _Particles(TypedDict):
     step: float
     steps: int
     pauses: list[int]
+    offsets: list[float]
     left_layer_end: int
     right_layer_start: int
     threads: int
@@ -229,6 +232,7 @@ def log_transmissions_of(
     disorder: list[_Term],
     static_potential: npt.NDArray[np.float64],
     model: _Model,
+    region: tuple[int, int],
     energies: list[float],
     realizations: _Realizations,
 ) -> npt.NDArray[np.float64]: ...

@@ -78,6 +78,7 @@ def setup(system: System, step: float, splitting: str) -> _Setup:
 def run(
     steps: int,
     pauses: Sequence[int],
+    offsets: Sequence[float],
     detector: tuple[int, int] | None,
     classical: tuple[float, float] | None,
     precision: str,
@@ -89,6 +90,7 @@ def run(
     return {
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
+        "offsets": [float(o) for o in offsets],
         "keep_snapshots": True,
         "detector": detector,
         "classical": start,
@@ -118,6 +120,7 @@ def spectrum(
 def ensemble_run(
     steps: int,
     pauses: Sequence[int],
+    offsets: Sequence[float],
     detector: tuple[int, int] | None,
     seed: int,
     precision: str,
@@ -130,6 +133,7 @@ def ensemble_run(
     return {
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
+        "offsets": [float(o) for o in offsets],
         "detector": detector,
         "seed": int(seed),
         "start": int(start),
@@ -194,6 +198,7 @@ def particles(
     step: float,
     steps: int,
     pauses: Sequence[int],
+    offsets: Sequence[float],
     threads: int,
 ) -> _Particles:
     """A classical ensemble: particles drawn from a packet's Wigner distribution, and their run."""
@@ -209,6 +214,7 @@ def particles(
         "step": float(step),
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
+        "offsets": [float(o) for o in offsets],
         "left_layer_end": left_end,
         "right_layer_start": right_start,
         "threads": int(threads),

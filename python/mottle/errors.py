@@ -15,4 +15,14 @@ class UnderResolvedWarning(UserWarning):
     """The run is visibly under-resolved (step, grid or absorber too coarse)."""
 
 
-__all__ = ["InvalidParameterError", "InvalidTypeError", "MottleError", "UnderResolvedWarning"]
+class StepChangedWarning(UserWarning):
+    """A duration that is not a whole number of steps runs equal steps more than 1% shorter than asked."""
+
+
+__all__ = [
+    "InvalidParameterError",
+    "InvalidTypeError",
+    "MottleError",
+    "StepChangedWarning",
+    "UnderResolvedWarning",
+]

@@ -16,7 +16,7 @@ use rayon::prelude::*;
 
 use crate::classical::{Landscape, Particle};
 use crate::error::{invalid, CoreError};
-use crate::propagate::validate_pauses;
+use crate::propagate::{validate_pauses, Pause};
 use crate::random::{Stream, CLASSICAL_PURPOSE};
 
 /// Steps between two looks at the cancel flag.
@@ -37,14 +37,16 @@ pub struct ClassicalSpec {
     pub index: u64,
     pub step: f64,
     pub steps: usize,
-    /// Step counts (increasing, in `1 ..= steps`) at which positions are binned.
-    pub pauses: Vec<usize>,
+    /// Times (increasing, within the run) at which the particles are recorded.
+    pub pauses: Vec<Pause>,
 }
 
-/// Final phase-space points and the binned positions at each pause.
+/// Final phase-space points, those at each pause, and the binned positions.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ClassicalOutput {
     pub particles: Vec<Particle>,
+    /// `particles x pauses`, particle-major: each particle at each pause.
+    pub trail: Vec<Particle>,
     /// `pauses x points`: particles nearest each grid point and not absorbed.
     pub counts: Vec<u64>,
     pub substeps: usize,
@@ -95,7 +97,7 @@ pub fn run_particles(
     if spec.particles == 0 {
         return invalid("particles must be >= 1");
     }
-    validate_pauses(&spec.pauses, spec.steps)?;
+    validate_pauses(&spec.pauses, spec.steps, spec.step)?;
 
     let mut particles: Vec<Particle> = (0..spec.particles)
         .into_par_iter()
@@ -111,14 +113,24 @@ pub fn run_particles(
     let start = landscape.start;
     let dx = landscape.dx;
 
+    let mut trail = vec![
+        Particle {
+            position: 0.0,
+            momentum: 0.0,
+            absorbed: 0,
+        };
+        spec.particles * snapshots.max(1)
+    ];
     // Integer counts: summed per rayon split and then across splits, which is
     // exact in any grouping, so the histogram does not depend on threads.
     let empty = || vec![0u64; snapshots * points];
     let counts = particles
         .par_chunks_mut(PARTICLES_PER_TASK)
-        .try_fold(empty, |mut counts, chunk| {
+        .zip(trail.par_chunks_mut(PARTICLES_PER_TASK * snapshots.max(1)))
+        .try_fold(empty, |mut counts, (chunk, seen)| {
             let mut done = 0;
-            for (s, &pause) in spec.pauses.iter().chain([&spec.steps]).enumerate() {
+            let ends = spec.pauses.iter().map(|p| p.steps).chain([spec.steps]);
+            for (s, pause) in ends.enumerate() {
                 // Slices of steps between looks at the cancel flag; a particle
                 // takes the same sub-steps however its run is sliced.
                 while done < pause {
@@ -132,10 +144,19 @@ pub fn run_particles(
                     done += slice;
                 }
                 if s < snapshots {
+                    let offset = spec.pauses[s].offset;
                     let row = &mut counts[s * points..(s + 1) * points];
-                    for particle in chunk.iter().filter(|p| p.absorbed == 0) {
-                        let bin = ((particle.position - start) / dx).round() as i64;
-                        row[bin.rem_euclid(points as i64) as usize] += 1;
+                    for (j, particle) in chunk.iter().enumerate() {
+                        // Between step boundaries: a copy moved on by the offset.
+                        let mut now = *particle;
+                        if offset > 0.0 {
+                            landscape.evolve(&mut now, offset, substeps);
+                        }
+                        seen[j * snapshots + s] = now;
+                        if now.absorbed == 0 {
+                            let bin = ((now.position - start) / dx).round() as i64;
+                            row[bin.rem_euclid(points as i64) as usize] += 1;
+                        }
                     }
                 }
             }
@@ -145,8 +166,10 @@ pub fn run_particles(
             total.iter_mut().zip(part).for_each(|(t, p)| *t += p);
             Ok(total)
         })?;
+    trail.truncate(spec.particles * snapshots);
     Ok(ClassicalOutput {
         particles,
+        trail,
         counts,
         substeps,
     })
@@ -168,7 +191,7 @@ mod tests {
             index: 0,
             step: 0.1,
             steps: 600,
-            pauses: vec![300, 600],
+            pauses: vec![Pause::at(300), Pause::at(600)],
         }
     }
 
@@ -198,6 +221,11 @@ mod tests {
             assert_eq!(beyond, if passes { 500 } else { 0 }, "p = {momentum}");
             let total: u64 = out.counts[..points].iter().sum();
             assert_eq!(total, 500);
+            // The last pause is the end of the run; the first is half way.
+            for (j, particle) in out.particles.iter().enumerate() {
+                assert_eq!(out.trail[2 * j + 1], *particle);
+                assert!(out.trail[2 * j].position < particle.position || !passes);
+            }
         }
     }
 

@@ -15,7 +15,7 @@ use crate::disorder::{Line, Realizer, Term};
 use crate::error::{invalid, CoreError};
 use crate::observables::{observe, wavenumbers, Detector};
 use crate::packets::PacketSource;
-use crate::propagate::validate_pauses;
+use crate::propagate::{validate_pauses, Offsets, Pause};
 use crate::real::{density, narrow, Real};
 use crate::spectrum::Spectrum;
 use crate::stepper::{Shared, Stepper};
@@ -33,7 +33,7 @@ pub struct Spec {
     pub disorder: Vec<Term>,
     pub packets: PacketSource,
     pub steps: usize,
-    pub pauses: Vec<usize>,
+    pub pauses: Vec<Pause>,
     pub detector: Option<Detector>,
     pub seed: u64,
     /// Resolve the transmission in energy at these modes.
@@ -64,6 +64,9 @@ pub struct Chunk {
     pub momentum: Vec<f64>,
     /// `T(k)` per realization and mode, `count x modes`, realization-major.
     pub spectrum: Vec<f64>,
+    /// `T(k)` from the first half and the first three quarters of the run,
+    /// `count x 2 x modes`: whether the spectrum has settled.
+    pub spectrum_settling: Vec<f64>,
 }
 
 fn line(shared_points: usize, dx: f64, start: f64) -> Line {
@@ -97,7 +100,7 @@ pub fn run_chunks<T: Real>(
             setup.points
         ));
     }
-    validate_pauses(&spec.pauses, spec.steps)?;
+    validate_pauses(&spec.pauses, spec.steps, setup.step)?;
     spec.packets.validate(setup.points)?;
     if let Some(detector) = spec.detector {
         detector.validate(setup.points)?;
@@ -126,18 +129,20 @@ pub fn run_chunks<T: Real>(
     let grid = line(setup.points, setup.dx, setup.start);
     // Fail on bad disorder before any thread starts.
     Realizer::new(grid, &spec.disorder)?;
+    let offsets = Offsets::<T>::new(setup, &spec.pauses)?;
     let starts: Vec<usize> = (start..start + count).step_by(CHUNK).collect();
     starts
         .into_par_iter()
         .map(|first| {
             let size = CHUNK.min(start + count - first);
-            run_chunk(shared, spec, grid, first, size, cancel)
+            run_chunk(shared, &offsets, spec, grid, first, size, cancel)
         })
         .collect()
 }
 
 fn run_chunk<T: Real>(
     shared: &Shared<T>,
+    offsets: &Offsets<T>,
     spec: &Spec,
     grid: Line,
     first: usize,
@@ -163,6 +168,7 @@ fn run_chunk<T: Real>(
     let mut initial = vec![Complex64::new(0.0, 0.0); n];
     let mut psi = vec![Complex::new(T::zero(), T::zero()); n];
     let mut buffer = psi.clone();
+    let mut copy = psi.clone();
     let k = wavenumbers(n, grid.dx);
     let momentum_scale = grid.dx * grid.dx / (2.0 * std::f64::consts::PI);
     let mut record: Vec<Complex64> = Vec::with_capacity(if spec.spectrum.is_some() {
@@ -196,14 +202,22 @@ fn run_chunk<T: Real>(
         let mut done = 0;
         for (s, &pause) in spec.pauses.iter().enumerate() {
             let probed = probe.as_ref().map(|points| (&points[..], &mut record));
-            stepper.advance_probed(&mut psi, pause - done, cancel, probed)?;
-            done = pause;
-            let observation = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
+            stepper.advance_probed(&mut psi, pause.steps - done, cancel, probed)?;
+            done = pause.steps;
+            let observation = offsets.observe(
+                &mut stepper,
+                &psi,
+                pause,
+                &mut copy,
+                &mut buffer,
+                &k,
+                spec.detector,
+                cancel,
+            )?;
             chunk.position.push(observation.position);
             chunk.position_squared.push(observation.position_squared);
             let row = s * n..(s + 1) * n;
-            let mut quartic = 0.0;
-            for ((((&z, d), d2), l), l2) in psi
+            for ((((&z, d), d2), l), l2) in copy
                 .iter()
                 .zip(&mut chunk.density[row.clone()])
                 .zip(&mut chunk.density_squared[row.clone()])
@@ -212,15 +226,12 @@ fn run_chunk<T: Real>(
             {
                 let rho = density(z);
                 let log = rho.max(DENSITY_FLOOR).ln();
-                quartic += rho * rho;
                 *d += rho;
                 *d2 += rho * rho;
                 *l += log;
                 *l2 += log * log;
             }
-            chunk
-                .participation
-                .push(quartic * grid.dx / (observation.norm * observation.norm));
+            chunk.participation.push(observation.participation);
             for (&z, m) in buffer.iter().zip(&mut chunk.momentum[row]) {
                 *m += density(z) * momentum_scale;
             }
@@ -229,9 +240,20 @@ fn run_chunk<T: Real>(
         stepper.advance_probed(&mut psi, spec.steps - done, cancel, probed)?;
         if let Some(spectrum) = &spec.spectrum {
             let setup = &shared.setup;
-            let values =
-                spectrum.transmission(&record, &initial_transform, setup.step, setup.hbar, grid.dx);
-            chunk.spectrum.extend(values);
+            let samples = record.len() / 2;
+            let cuts = [samples / 2, 3 * samples / 4, samples];
+            let mut values = spectrum.transmission_at(
+                &record,
+                &initial_transform,
+                setup.step,
+                setup.hbar,
+                grid.dx,
+                &cuts,
+            );
+            chunk.spectrum.extend(values.pop().unwrap_or_default());
+            values
+                .into_iter()
+                .for_each(|early| chunk.spectrum_settling.extend(early));
         }
         let last = observe(&mut stepper, &psi, &mut buffer, &k, spec.detector);
         chunk.transmission.push(last.transmission);

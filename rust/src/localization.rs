@@ -73,11 +73,13 @@ impl Sample<'_> {
     }
 }
 
-/// `ln T` through the whole potential for each realization and energy:
-/// `count x energies`, realization-major (see `transfer::log_transmission` for the leads).
+/// `ln T` through the points `region` of the potential (its first and last
+/// points are the leads) for each realization and energy: `count x energies`,
+/// realization-major (see `transfer::log_transmission` for the leads).
 pub fn log_transmissions(
     sample: &Sample,
     medium: Medium,
+    region: Range<usize>,
     energies: &[f64],
     first: usize,
     count: usize,
@@ -85,10 +87,17 @@ pub fn log_transmissions(
 ) -> Result<Vec<f64>, CoreError> {
     medium.validate()?;
     sample.validate(energies)?;
+    if region.len() < 2 || region.end > sample.line.points {
+        return invalid(format!(
+            "region {region:?} must hold at least two of the grid's {} points (one per lead)",
+            sample.line.points
+        ));
+    }
     let rows = sample.map_realizations(first, count, cancel, |potential, _| {
+        let cells = &potential[region.clone()];
         energies
             .par_iter()
-            .map(|&energy| log_transmission(medium, potential, energy, cancel))
+            .map(|&energy| log_transmission(medium, cells, energy, cancel))
             .collect::<Result<Vec<f64>, CoreError>>()
     })?;
     Ok(rows.into_iter().flatten().collect())
@@ -207,6 +216,7 @@ mod tests {
                     log_transmissions(
                         &sample(&statics, &terms),
                         medium,
+                        0..statics.len(),
                         &[0.3, 1.1],
                         32,
                         20,
@@ -227,6 +237,7 @@ mod tests {
                 log_transmissions(
                     &sample(&statics, &terms),
                     medium,
+                    0..statics.len(),
                     &[0.3, 1.1],
                     0,
                     52,

@@ -38,6 +38,8 @@ pub struct Observation {
     pub position_squared: f64,
     pub momentum: f64,
     pub energy: f64,
+    /// Inverse participation ratio `sum |psi|^4 dx / (sum |psi|^2 dx)^2` (1/length).
+    pub participation: f64,
     /// `P(x < left) + absorbed_left` (NaN without a detector).
     pub reflection: f64,
     /// `P(x > right) + absorbed_right` (NaN without a detector).
@@ -57,6 +59,13 @@ pub fn wavenumbers(points: usize, dx: f64) -> Vec<f64> {
             2.0 * std::f64::consts::PI * index / length
         })
         .collect()
+}
+
+/// The momentum density `|phi(k)|^2` of a Fourier transform `transform`
+/// (unnormalized, FFT order), scaled so that `sum n(k) dk = sum |psi|^2 dx`.
+pub fn momentum_density<T: Real>(transform: &[Complex<T>], dx: f64) -> Vec<f64> {
+    let scale = dx * dx / (2.0 * std::f64::consts::PI);
+    transform.iter().map(|&z| density(z) * scale).collect()
 }
 
 /// Measure `psi`; `buffer` (the grid's size) receives its Fourier transform.
@@ -108,6 +117,7 @@ pub fn observe<T: Real>(
         position_squared: second / norm,
         momentum: setup.hbar * momentum / spectral,
         energy,
+        participation: quartic * setup.dx / ((norm * setup.dx) * (norm * setup.dx)),
         reflection,
         transmission,
     }

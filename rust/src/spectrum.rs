@@ -46,32 +46,69 @@ impl Spectrum {
         dx: f64,
     ) -> Vec<f64> {
         let samples = record.len() / 2;
-        (0..self.modes.len())
-            .map(|m| {
-                let energy = self.energies[m];
-                let rotation = Complex64::from_polar(1.0, energy * step / hbar);
-                let mut phasor = Complex64::new(1.0, 0.0);
-                let mut sums = [Complex64::new(0.0, 0.0); 2];
-                for n in 0..samples {
-                    sums[0] += phasor * record[2 * n];
-                    sums[1] += phasor * record[2 * n + 1];
-                    phasor *= rotation;
-                    if n % 256 == 255 {
-                        // Rounding would slowly change |phasor|; recompute it exactly.
-                        phasor = Complex64::from_polar(1.0, energy * step * (n + 1) as f64 / hbar);
-                    }
+        self.transmission_at(record, initial_transform, step, hbar, dx, &[samples])
+            .pop()
+            .unwrap_or_default()
+    }
+
+    /// `T(k)` of each mode from the first `cuts[c]` recorded pairs, for each
+    /// (increasing) cut: how `T` settles as the run goes on. A narrow resonance
+    /// releases its wave slowly, and `T` from a run cut short still changes.
+    pub fn transmission_at(
+        &self,
+        record: &[Complex64],
+        initial_transform: &[Complex64],
+        step: f64,
+        hbar: f64,
+        dx: f64,
+        cuts: &[usize],
+    ) -> Vec<Vec<f64>> {
+        let samples = record.len() / 2;
+        let mut out = vec![Vec::with_capacity(self.modes.len()); cuts.len()];
+        for m in 0..self.modes.len() {
+            let energy = self.energies[m];
+            let rotation = Complex64::from_polar(1.0, energy * step / hbar);
+            let mut phasor = Complex64::new(1.0, 0.0);
+            let mut sums = [Complex64::new(0.0, 0.0); 2];
+            let mut cut = 0;
+            for n in 0..=samples {
+                while cut < cuts.len() && cuts[cut].min(samples) == n {
+                    out[cut].push(self.right_moving(m, sums, initial_transform, step, dx));
+                    cut += 1;
                 }
-                // F_i = A e^{i k x_i} + B e^{-i k x_i}: solve for the right-moving A.
-                let k = self.wavenumbers[m];
-                let [x1, x2] = self.positions;
-                let determinant = Complex64::new(0.0, 2.0 * (k * (x1 - x2)).sin());
-                let right = (sums[0] * Complex64::from_polar(1.0, -k * x2)
-                    - sums[1] * Complex64::from_polar(1.0, -k * x1))
-                    / determinant
-                    * step;
-                let incident = initial_transform[self.modes[m]].norm_sqr() * dx * dx;
-                right.norm_sqr() * self.velocities[m] * self.velocities[m] / incident
-            })
-            .collect()
+                if n == samples {
+                    break;
+                }
+                sums[0] += phasor * record[2 * n];
+                sums[1] += phasor * record[2 * n + 1];
+                phasor *= rotation;
+                if n % 256 == 255 {
+                    // Rounding would slowly change |phasor|; recompute it exactly.
+                    phasor = Complex64::from_polar(1.0, energy * step * (n + 1) as f64 / hbar);
+                }
+            }
+        }
+        out
+    }
+
+    /// `T` of mode `m` from the time transforms `sums` at the two probes.
+    fn right_moving(
+        &self,
+        m: usize,
+        sums: [Complex64; 2],
+        initial_transform: &[Complex64],
+        step: f64,
+        dx: f64,
+    ) -> f64 {
+        // F_i = A e^{i k x_i} + B e^{-i k x_i}: solve for the right-moving A.
+        let k = self.wavenumbers[m];
+        let [x1, x2] = self.positions;
+        let determinant = Complex64::new(0.0, 2.0 * (k * (x1 - x2)).sin());
+        let right = (sums[0] * Complex64::from_polar(1.0, -k * x2)
+            - sums[1] * Complex64::from_polar(1.0, -k * x1))
+            / determinant
+            * step;
+        let incident = initial_transform[self.modes[m]].norm_sqr() * dx * dx;
+        right.norm_sqr() * self.velocities[m] * self.velocities[m] / incident
     }
 }

@@ -168,8 +168,8 @@ def _command_run(args) -> int:
     from ..studies.runner import run_study
     from ..studies.study import load_study
 
-    study = load_study(args.study)
     store = Path(args.store) if args.store else Path(args.study).with_suffix(".h5")
+    study = load_study(args.study, store)
     if args.dry_run:
         print(f"{args.study}: valid, {len(study.points)} points, {study.realizations} realizations in all")
         for point in study.points:

@@ -231,9 +231,76 @@ def _colours(count: int):
     return [cmap(0.85 * i / max(count - 1, 1)) for i in range(count)]
 
 
+MAX_DENSITY_PANELS = 6
+"""The density figure shows at most this many points, one panel each (evenly picked)."""
+
+
+def _regions(store: Store, point) -> tuple[list[tuple[float, float]], list[tuple[float, float]]]:
+    """``(disorder regions, absorbing layers)`` of a stored point's system, as x intervals."""
+    from ..studies.study import build_system
+
+    try:
+        system = build_system(point.resolved, getattr(store, "tables", {}))
+    except Exception:  # shading is a courtesy; the curves do not depend on it
+        return [], []
+    disorder = [] if system.disorder is None else [(term.start, term.stop) for term in system.disorder.terms]
+    layers = []
+    if system.absorber is not None:
+        grid, width = system.grid, system.absorber.width
+        layers = [(grid.start, grid.start + width), (grid.stop - width, grid.stop)]
+    return disorder, layers
+
+
 def density_figure(store: Store):
-    """Mean density ``<|psi(x)|^2>`` on a log scale, one panel per snapshot, one line per point."""
-    return _profile_figure(store, "density", log=True)
+    """Mean density ``<|psi(x)|^2>`` on a log scale: one panel per point (at most
+    :data:`MAX_DENSITY_PANELS`, evenly picked), one line per snapshot (at most four), with the
+    disorder region shaded grey and the absorbing layers hatched red."""
+    from matplotlib.patches import Patch
+
+    points = store.points
+    shown = _panels_of(len(points), MAX_DENSITY_PANELS)
+    first = points[0].result
+    snapshots = _panels(first.times)
+    figure, axes = _figure(len(shown), 1, height=2.6)
+    names = short_names(store.sweep)
+    colours = _colours(len(snapshots))
+    for ax, number in zip(axes, shown, strict=True):
+        point = points[number]
+        result = point.result
+        disorder, layers = _regions(store, point)
+        for start, stop in disorder:
+            ax.axvspan(start, stop, color="0.85", zorder=0)
+        for start, stop in layers:
+            ax.axvspan(start, stop, facecolor="none", edgecolor="tab:red", hatch="//", alpha=0.5, zorder=0)
+        peak = 0.0
+        for colour, snapshot in zip(colours, snapshots, strict=True):
+            y = result.density[snapshot]
+            ax.plot(result.x, y, color=colour, linewidth=1, label=f"t = {result.times[snapshot]:.4g}")
+            peak = max(peak, float(np.max(y)))
+        ax.set_yscale("log")
+        if peak > 0:
+            ax.set_ylim(peak * 1e-14, peak * 3)
+        ax.set_xlim(result.x[0], result.x[-1])
+        title = point.label(names) if store.sweep else store.title
+        ax.set_title(f"point {number + 1}: {title}", fontsize="medium")
+        ax.set_ylabel("mean |psi(x)|^2")
+    axes[-1].set_xlabel("x")
+    handles, _ = axes[0].get_legend_handles_labels()
+    handles += [
+        Patch(color="0.85", label="disorder"),
+        Patch(facecolor="none", edgecolor="tab:red", hatch="//", label="absorbing layer"),
+    ]
+    figure.legend(handles=handles, fontsize="small", ncol=4, loc="outside upper center")
+    if len(shown) < len(points):
+        figure.suptitle(f"{len(shown)} of {len(points)} points shown", fontsize="small")
+    return figure
+
+
+def _panels_of(count: int, most: int) -> list[int]:
+    """At most ``most`` of ``count`` indices, evenly spread, first and last included."""
+    if count <= most:
+        return list(range(count))
+    return sorted({round(i * (count - 1) / (most - 1)) for i in range(most)})
 
 
 def momentum_figure(store: Store):

@@ -24,7 +24,7 @@ from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
 from ..specs.packets import GaussianPacket
 from ..specs.system import System
-from .propagate import Run, check_detector, check_system, pauses_for, propagate, steps_for
+from .propagate import Run, check_system, default_detector, propagate, run_arguments
 from .realize import realize
 
 # Bytes per particle: the core's phase-space points (24) and the arrays returned (17).
@@ -44,7 +44,9 @@ class ClassicalEnsemble:
     are :class:`Stat` records of the indicator per particle (mean = fraction,
     binomial standard error), with the quantum runs' detector:
     ``R = P(x < left) + absorbed_left``, ``T = P(x > right) + absorbed_right``
-    (``None`` without a detector).
+    (``None`` without a detector). ``positions[s]``, ``momenta[s]`` and ``absorbed_at[s]``
+    are every particle at ``times[s]`` (``snapshots x particles``; an absorbed particle keeps
+    where it entered its layer), and ``step`` is the step used (see :func:`mottle.propagate`).
     """
 
     times: np.ndarray
@@ -55,6 +57,10 @@ class ClassicalEnsemble:
     density: np.ndarray
     detector: tuple[float, float] | None
     substeps: int
+    step: float
+    positions: np.ndarray
+    momenta: np.ndarray
+    absorbed_at: np.ndarray
 
     @property
     def count(self) -> int:
@@ -120,21 +126,20 @@ def classical_ensemble(
     duration = _checks.positive("duration", duration)
     step = _checks.positive("step", step)
     particles = _checks.integer("particles", particles, minimum=1)
-    have = _memory_bytes()
-    if particles * _BYTES_PER_PARTICLE > have // 2:
-        raise InvalidParameterError(
-            f"particles={particles} need {particles * _BYTES_PER_PARTICLE / 2**30:.1f} GiB, "
-            f"more than half this machine's {have / 2**30:.1f} GiB: "
-            f"use at most {have // 2 // _BYTES_PER_PARTICLE} particles"
-        )
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)
     threads = _checks.threads(threads)
-    steps = steps_for(duration, step)
-    pauses = pauses_for(snapshots, step, steps)
-    if detector is None and system.disorder is not None:
-        detector = (system.disorder.start, system.disorder.stop)
-    detector = check_detector(detector)
+    arguments = run_arguments(system, duration, step, snapshots, detector, default_to_disorder=True)
+    detector = arguments.detector
+    # The end and every snapshot.
+    per_particle = _BYTES_PER_PARTICLE * (1 + len(arguments.pauses))
+    have = _memory_bytes()
+    if particles * per_particle > have // 2:
+        raise InvalidParameterError(
+            f"particles={particles} need {particles * per_particle / 2**30:.1f} GiB, "
+            f"more than half this machine's {have / 2**30:.1f} GiB: "
+            f"use at most {have // 2 // per_particle} particles"
+        )
     grid, model = system.grid, system.model
     hbar = model.hbar
     config = _requests.particles(
@@ -146,16 +151,17 @@ def classical_ensemble(
         particles,
         seed,
         index,
-        step,
-        steps,
-        pauses,
+        arguments.step,
+        arguments.steps,
+        arguments.pauses,
+        arguments.offsets,
         threads,
     )
     out = _core.classical_particles(
         _requests.line(grid), _requests.model(model), config, realize(system, seed, index)
     )
     return ClassicalEnsemble(
-        times=np.asarray(pauses, dtype=float) * step,
+        times=arguments.times,
         x=np.asarray(grid.x),
         position=out["position"],
         momentum=out["momentum"],
@@ -163,6 +169,10 @@ def classical_ensemble(
         density=out["counts"] / (particles * grid.dx),
         detector=detector,
         substeps=int(out["substeps"]),
+        step=arguments.step,
+        positions=out["trail_position"].T.copy(),
+        momenta=out["trail_momentum"].T.copy(),
+        absorbed_at=out["trail_absorbed"].T.copy(),
     )
 
 
@@ -199,8 +209,7 @@ def quantum_classical(
 ) -> QuantumClassical:
     """:func:`mottle.propagate` and :func:`classical_ensemble` on the same realization, packet,
     detector and snapshots (the detector defaults to the disorder region for both)."""
-    if detector is None and isinstance(system, System) and system.disorder is not None:
-        detector = (system.disorder.start, system.disorder.stop)
+    detector = default_detector(system, detector)
     classical = classical_ensemble(
         system, packet, duration, step, particles, seed, index, detector, snapshots, threads
     )

@@ -21,15 +21,9 @@ from ..analysis.statistics import Stat, stderr, stderr_from_sums
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
 from ..specs.system import System
-from .propagate import (
-    check_system,
-    detector_bounds,
-    pauses_for,
-    resolve_splitting,
-    steps_for,
-    warn_if_coarse,
-)
+from .propagate import run_arguments, warn_if_coarse
 from .realize import realize
+from .spectrum import Spectrum, settling_problem, spectrum_config
 
 if TYPE_CHECKING:
     from .._core import _EnsembleRun, _Packets, _Setup, _Term
@@ -39,7 +33,7 @@ CHUNK: int = _core.CHUNK
 
 _SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right")
 _PER_SNAPSHOT = ("position", "position_squared", "participation")
-_PER_MODE = ("spectrum",)
+_PER_MODE = ("spectrum", "spectrum_settling")
 _MAX_MODES = limits.SPECTRUM_MODES
 _PROFILES = ("density", "density_squared", "log_density", "log_density_squared", "momentum")
 
@@ -57,6 +51,8 @@ class EnsemblePartial:
     times: np.ndarray = field(default_factory=lambda: np.zeros(0))
     spectrum_wavenumbers: np.ndarray = field(default_factory=lambda: np.zeros(0))
     spectrum_energies: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    step: float = math.nan
+    duration: float = math.nan
 
     @property
     def count(self) -> int:
@@ -108,6 +104,9 @@ class EnsembleResult:
     ``sum momentum dk = norm``). ``second_moment`` is the mean over realizations
     of ``<(x - <x>)^2>`` and ``participation`` the mean inverse participation
     ratio ``sum |psi|^4 dx / (sum |psi|^2 dx)^2`` (1/length), per snapshot.
+    ``step`` is the step the runs used (``duration / ceil(duration / step)``, see
+    :func:`mottle.propagate`). With a spectrum, the runs warn
+    (:class:`UnderResolvedWarning`) when ``T(k)`` has not settled by their end.
     """
 
     count: int
@@ -123,6 +122,7 @@ class EnsembleResult:
     momentum: np.ndarray
     spectrum_wavenumbers: np.ndarray = field(default_factory=lambda: np.zeros(0))
     spectrum_energies: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    step: float = math.nan
 
     @property
     def spectrum(self) -> Spectrum | None:
@@ -181,12 +181,26 @@ class EnsembleResult:
         for item in fields(cls):
             if item.name == "samples":
                 continue
+            if item.name not in arrays:
+                continue  # a field added since the store was written keeps its default
             value = np.asarray(arrays[item.name])
-            values[item.name] = int(value) if item.name in ("count", "seed") else value
+            if item.name in ("count", "seed"):
+                value = int(value)
+            elif item.name == "step":
+                value = float(value)
+            values[item.name] = value
         return cls(samples=samples, **values)
 
 
-def _finish(fold: _Fold, seed: int, times: np.ndarray, system: System, modes_info) -> EnsembleResult:
+def _finish(
+    fold: _Fold,
+    seed: int,
+    times: np.ndarray,
+    system: System,
+    modes_info,
+    step: float = math.nan,
+    duration: float = math.nan,
+) -> EnsembleResult:
     count = fold.count
     if count == 0 or fold.sums is None:
         raise InvalidParameterError("an ensemble needs at least one realization")
@@ -196,6 +210,12 @@ def _finish(fold: _Fold, seed: int, times: np.ndarray, system: System, modes_inf
         samples[name] = samples[name].reshape(count, snapshots)
     modes = modes_info[0].size
     samples["spectrum"] = samples["spectrum"].reshape(count, modes)
+    # How T(k) settled over the run: checked here, not kept.
+    settling = samples.pop("spectrum_settling").reshape(count, 2 * modes)
+    if modes:
+        problem = settling_problem(samples["spectrum"], settling, modes_info[0], duration)
+        if problem is not None:
+            warnings.warn(problem, UnderResolvedWarning, stacklevel=3)
     sums = fold.sums
 
     density, density_stderr = stderr_from_sums(sums["density"], sums["density_squared"], count)
@@ -217,165 +237,7 @@ def _finish(fold: _Fold, seed: int, times: np.ndarray, system: System, modes_inf
         momentum=momentum,
         spectrum_wavenumbers=np.asarray(modes_info[0], dtype=float),
         spectrum_energies=np.asarray(modes_info[1], dtype=float),
-    )
-
-
-@dataclass(frozen=True)
-class Spectrum:
-    """Energy-resolved transmission ``T(k)`` from time-dependent runs.
-
-    The wave at a point ``x_R`` on the free side (a quarter of the way
-    from the detector's right edge to the right absorbing layer) is recorded at every
-    step and Fourier-transformed in time: right of the sample the transmitted
-    wave is free, so ``F(E) = phi0(k) t(k) e^{i k x_R} / v(k)`` and
-    ``T(k) = |F|**2 v**2 / |phi0(k)|**2``. This is exact once the whole
-    transmitted wave has crossed ``x_R`` (an absorber may swallow it afterwards);
-    cut short, it underestimates ``T`` at the slowest wavenumbers, so run until
-    the slowest resolved component (``wavenumbers.min()``) has crossed (a
-    warning names the duration); in a disordered sample, narrow resonances
-    release their wave slowly, so extend the run until ``T(k)`` stops
-    changing (measured: 2% short at the warning's duration, 0.3% at 1.4x it).
-    The step must keep the kinetic phase per step below 2 pi at the grid's
-    largest wavenumber, or modes alias (warned). The band is the packet's
-    (``|k - k0| <= 3.5 sigma_k``, right-moving), on the grid's wavenumbers.
-    ``mean``/``stderr`` are over realizations, ``log_mean``/``log_stderr``
-    those of ``ln T`` (typical transmission ``exp(log_mean)``).
-    """
-
-    wavenumbers: np.ndarray
-    energies: np.ndarray
-    mean: np.ndarray
-    stderr: np.ndarray
-    log_mean: np.ndarray
-    log_stderr: np.ndarray
-    samples: np.ndarray
-
-    @classmethod
-    def of(cls, wavenumbers, energies, samples) -> Spectrum:
-        samples = np.asarray(samples, dtype=float)
-        logs = np.log(np.maximum(samples, 1e-300))
-        return cls(
-            wavenumbers=np.asarray(wavenumbers),
-            energies=np.asarray(energies),
-            mean=np.mean(samples, axis=0),
-            stderr=stderr(samples),
-            log_mean=np.mean(logs, axis=0),
-            log_stderr=stderr(logs),
-            samples=samples,
-        )
-
-
-def _packet_band(packet, grid) -> tuple[float, float]:
-    """The wavenumbers one packet carries: k0 +- 3.5 sigma_k, or where |phi(k)|**2 > 1e-3 of its peak."""
-    if isinstance(packet, GaussianPacket):
-        reach = limits.SPECTRUM_BAND * packet.wavenumber_spread
-        return packet.wavenumber - reach, packet.wavenumber + reach
-    weight = np.abs(np.fft.fft(packet.values(grid))) ** 2
-    strong = grid.k[weight >= limits.SPECTRUM_WEIGHT * weight.max()]
-    return float(strong.min()), float(strong.max())
-
-
-def _band_modes(system: System, packet) -> np.ndarray:
-    """FFT indices of the right-moving grid wavenumbers in the packet's band."""
-    grid, model = system.grid, system.model
-    if isinstance(packet, RandomPacket):
-        # Draws fill the whole range between the extreme packets.
-        corners = [_packet_band(corner, grid) for corner in packet.corners()]
-        intervals = [(min(low for low, _ in corners), max(high for _, high in corners))]
-    else:
-        entries = packet.packets if isinstance(packet, PacketList) else (packet,)
-        intervals = [_packet_band(entry, grid) for entry in entries]
-    k = np.asarray(grid.k)
-    inside = np.zeros(k.size, dtype=bool)
-    for low, high in intervals:
-        inside |= (k >= low) & (k <= high)
-    inside &= (k > 0.0) & (model.velocity(k, grid.dx) > 0.0)
-    modes = np.flatnonzero(inside)
-    modes = modes[np.argsort(k[modes])]
-    if modes.size > _MAX_MODES:
-        modes = modes[np.linspace(0, modes.size - 1, _MAX_MODES).round().astype(int)]
-    return modes
-
-
-def _spectrum_problems(system, packet, step, duration, x_probe, slowest) -> list[str]:
-    """The two ways a time-resolved spectrum goes wrong, both measured on a barrier."""
-    model, grid = system.model, system.grid
-    problems = []
-    top = float(np.max(model.kinetic(grid.k, grid.dx)) - model.band_bottom(grid.dx))
-    if top * step / system.hbar >= limits.SPECTRUM_PHASE_PER_STEP:
-        # Modes whose kinetic phases per step differ by 2 pi share a quasi-energy of the
-        # discrete-time evolution; the sample's sharp features scatter into them and the
-        # time transform cannot tell them apart (measured: 3e-3 errors in T(k)).
-        problems.append(
-            f"step {step} is too long for the energy-resolved transmission: the kinetic phase per step "
-            f"reaches {top * step / system.hbar:.3g} rad at the grid's largest wavenumber; keep it below "
-            f"2 pi (step < {2 * math.pi * system.hbar / top:.3g}) or result.spectrum aliases"
-        )
-    centers = [p.center for p in getattr(packet, "corners", lambda: [packet])() if hasattr(p, "center")]
-    if centers:
-        # Measured on free packets: 1.5x the naive arrival time still left 2e-4 errors.
-        needed = 2.0 * (x_probe - min(centers)) / slowest
-        if duration < needed:
-            problems.append(
-                f"duration {duration} may end before the slowest resolved wavenumber has crossed the "
-                f"spectrum's probe at x = {x_probe:.4g}; result.spectrum is then too low at the band's slow "
-                f"edge: use duration >= {needed:.4g}"
-            )
-    return problems
-
-
-def _spectrum_config(system: System, packet, bounds, step: float, duration: float, wanted):
-    """What the core needs to resolve the transmission in energy, or None.
-
-    ``wanted=None`` resolves it where it can be done well and skips it silently
-    otherwise; ``True`` insists (errors without a free right side, warns when
-    under-resolved); ``False`` skips it.
-    """
-    if wanted is False:
-        return None
-    if bounds is None or bounds[1] >= system.grid.points:
-        if wanted:
-            raise InvalidParameterError("spectrum=True needs a detector (or disorder to default it to)")
-        return None
-    right_start = system.layer_bounds()[1]
-    # The free side starts past the detector, the last nonzero potential value and the disorder.
-    nonzero = np.flatnonzero(system.static_potential())
-    edge = max(bounds[1], int(nonzero[-1]) + 1 if nonzero.size else 0)
-    if system.disorder is not None:
-        edge = max(edge, int(np.searchsorted(system.grid.x, system.disorder.stop, side="left")))
-    # A cell-averaged edge spills into at most the next point; potential farther right
-    # would make the spectrum describe a different sample than the detector counts.
-    if edge >= right_start or edge > bounds[1] + 2:
-        if wanted:
-            raise InvalidParameterError(
-                "spectrum=True needs a free right side: no potential or disorder between the detector's "
-                "right edge and the right absorbing layer"
-            )
-        return None
-    # Record a quarter of the way from the detector's edge to the absorbing layer: next to
-    # a sharp edge of the sample the grid's spectral Laplacian leaves a non-propagating near
-    # field at the same energy (measured: 2.5e-3 in T one grid point from a barrier's edge);
-    # farther on, the run must last longer for the slow components to arrive.
-    probe = edge + (right_start - edge) // 4
-    modes = _band_modes(system, packet)
-    if modes.size == 0:
-        return None
-    k = np.asarray(system.grid.k)[modes]
-    # The second probe a quarter wavelength of the fastest mode further on, to
-    # separate the transmitted wave from what the absorber sends back.
-    offset = max(1, round(np.pi / (2.0 * k.max()) / system.grid.dx))
-    probes = [int(probe), int(min(probe + offset, system.grid.points - 1))]
-    if probes[1] == probes[0]:
-        return None
-    energies = np.asarray(system.model.kinetic(k, system.grid.dx), dtype=float)
-    velocities = np.asarray(system.model.velocity(k, system.grid.dx), dtype=float)
-    problems = _spectrum_problems(system, packet, step, duration, system.grid.x[probe], velocities.min())
-    if problems and not wanted:
-        return None
-    for problem in problems:
-        warnings.warn(problem, UnderResolvedWarning, stacklevel=4)
-    return _requests.spectrum(
-        probes, [float(system.grid.x[p]) for p in probes], modes.tolist(), k.tolist(), energies, velocities
+        step=float(step),
     )
 
 
@@ -393,12 +255,10 @@ class _Plan:
     times: np.ndarray
     seed: int
     modes_info: tuple
+    step: float
+    duration: float
 
 
-def _default_detector(system: System, detector):
-    if detector is None and system.disorder is not None:
-        return (system.disorder.start, system.disorder.stop)
-    return detector
 
 
 def plan(
@@ -415,26 +275,20 @@ def plan(
     spectrum=None,
 ) -> _Plan:
     """Validate an ensemble's arguments before anything large is allocated."""
-    check_system(system)
     if not isinstance(packet, (GaussianPacket, Wavefunction, RandomPacket, PacketList)):
         raise InvalidTypeError(
             "packet must be a GaussianPacket, Wavefunction, RandomPacket or PacketList, "
             f"got {type(packet).__name__}"
         )
+    arguments = run_arguments(system, duration, step, snapshots, detector, order, splitting, True)
     packet.validate(system.grid)
-    duration = _checks.positive("duration", duration)
-    step = _checks.positive("step", step)
     seed = _checks.integer("seed", seed, minimum=0)
-    splitting = resolve_splitting(order, splitting)
     _checks.choice("precision", precision, ("double", "single"))
-    steps = steps_for(duration, step)
-    pauses = pauses_for(snapshots, step, steps)
-    bounds = detector_bounds(system, _default_detector(system, detector))
     first = packet if isinstance(packet, (GaussianPacket, Wavefunction)) else packet.packet(seed, 0)
-    warn_if_coarse(system, first, step, realize(system, seed, 0))
+    warn_if_coarse(system, first, arguments.step, realize(system, seed, 0))
     if spectrum not in (None, True, False):
         raise InvalidTypeError(f"spectrum must be None, True or False, got {spectrum!r}")
-    spectrum = _spectrum_config(system, packet, bounds, step, duration, spectrum)
+    spectrum = spectrum_config(system, packet, arguments.bounds, arguments.step, arguments.duration, spectrum)
     k = np.asarray(system.grid.k)
     modes_info = (
         (np.zeros(0), np.zeros(0))
@@ -442,16 +296,20 @@ def plan(
         else (k[spectrum["modes"]], np.asarray(spectrum["energies"]))
     )
     return _Plan(
-        setup=_requests.setup(system, step, splitting),
-        run=_requests.ensemble_run(steps, pauses, bounds, seed, precision, spectrum),
+        setup=_requests.setup(system, arguments.step, arguments.splitting),
+        run=_requests.ensemble_run(
+            arguments.steps, arguments.pauses, arguments.offsets, arguments.bounds, seed, precision, spectrum
+        ),
         kinetic=system.kinetic_table(),
         absorption=system.absorption(),
         static=system.static_potential(),
         disorder=_requests.disorder_terms(system.disorder),
         packets=_requests.packets(system.grid, packet),
-        times=np.asarray(pauses, dtype=float) * step,
+        times=arguments.times,
         seed=seed,
         modes_info=modes_info,
+        step=arguments.step,
+        duration=arguments.duration,
     )
 
 
@@ -517,9 +375,19 @@ def ensemble(
             if target_stderr is not None and fold.count >= 2:
                 transmission = fold.transmission()
                 if stderr(transmission) < target_stderr:
-                    return _finish(fold, prepared.seed, prepared.times, system, prepared.modes_info)
+                    return _finish(
+                        fold,
+                        prepared.seed,
+                        prepared.times,
+                        system,
+                        prepared.modes_info,
+                        prepared.step,
+                        prepared.duration,
+                    )
         start += count
-    return _finish(fold, prepared.seed, prepared.times, system, prepared.modes_info)
+    return _finish(
+        fold, prepared.seed, prepared.times, system, prepared.modes_info, prepared.step, prepared.duration
+    )
 
 
 def ensemble_partial(
@@ -557,6 +425,8 @@ def ensemble_partial(
         times=prepared.times,
         spectrum_wavenumbers=prepared.modes_info[0],
         spectrum_energies=prepared.modes_info[1],
+        step=prepared.step,
+        duration=prepared.duration,
     )
 
 
@@ -575,4 +445,5 @@ def merge_partials(partials, system: System, seed: int | None = None, times=None
     first = ordered[0]
     seed = first.seed if seed is None else seed
     times = first.times if times is None else np.asarray(times, dtype=float)
-    return _finish(fold, seed, times, system, (first.spectrum_wavenumbers, first.spectrum_energies))
+    modes_info = (first.spectrum_wavenumbers, first.spectrum_energies)
+    return _finish(fold, seed, times, system, modes_info, first.step, first.duration)

@@ -36,7 +36,11 @@ class Run:
     each snapshot. ``classical_position`` and
     ``classical_momentum`` follow a classical particle started at the packet's
     ``<x>`` and ``<p>`` in the same (real) potential; they are NaN once it has
-    entered an absorbing layer.
+    entered an absorbing layer. ``step`` is the step the run used (see
+    :func:`propagate`). Per snapshot, as :class:`mottle.EnsembleResult` has them:
+    ``energy``, ``second_moment``, ``participation`` (inverse participation ratio
+    ``sum |psi|**4 dx / (sum |psi|**2 dx)**2``, 1/length) and ``momentum_density``
+    (``|phi(k)|**2`` at the increasing wavenumbers ``k``, ``sum momentum_density dk = norm``).
     """
 
     times: np.ndarray
@@ -60,6 +64,15 @@ class Run:
     classical_momentum: np.ndarray | None
     x: np.ndarray
     dx: float
+    step: float
+    participation: np.ndarray
+    momentum_density: np.ndarray
+    k: np.ndarray
+
+    @property
+    def second_moment(self) -> np.ndarray:
+        """``<(x - <x>)**2>`` at the snapshots (the ensemble's ``second_moment`` of one run)."""
+        return self.position_squared - self.position**2
 
     @property
     def width(self) -> np.ndarray:
@@ -72,20 +85,29 @@ class Run:
         return np.abs(self.psi) ** 2
 
 
-def steps_for(duration: float, step: float, name: str = "duration") -> int:
-    """The whole number of steps in ``duration``; refuse a duration that is not a multiple of ``step``."""
-    count = round(duration / step)
-    if count < 1 or abs(count * step - duration) > 1e-9 * max(duration, step):
-        nearby = duration / max(count, 1)
-        raise InvalidParameterError(
-            f"{name} {duration} is not a whole number of steps of {step}: use a step that divides it, "
-            f"e.g. step = {nearby:.6g} ({max(count, 1)} steps)"
-        )
-    return count
+STEP_CHANGE = 0.01
+"""A duration that is not a whole number of steps runs ``ceil(duration / step)`` equal shorter steps;
+a change of the step by more than this fraction warns (:class:`mottle.errors.StepChangedWarning`)."""
+
+# Times closer than this fraction of a step to a step boundary are on it (rounding noise).
+_ON_BOUNDARY = 1e-9
 
 
-def pauses_for(snapshots, step: float, steps: int) -> list[int]:
-    """Step counts of the snapshot times (rounded to the nearest step), increasing."""
+def steps_for(duration: float, step: float) -> tuple[int, float]:
+    """``(n, h)``: ``n = ceil(duration / step)`` equal steps of ``h = duration / n`` (``h = step`` when
+    ``duration`` is a whole number of steps, to rounding)."""
+    ratio = duration / step
+    nearest = round(ratio)
+    if nearest >= 1 and abs(ratio - nearest) <= _ON_BOUNDARY * max(nearest, 1):
+        return nearest, step
+    count = max(1, math.ceil(ratio))
+    return count, duration / count
+
+
+def pauses_for(snapshots, step: float, steps: int) -> tuple[list[int], list[float], np.ndarray]:
+    """The snapshot times as ``(whole steps, offsets, times)``: time ``t`` is ``m = floor(t / step)``
+    whole steps and an offset ``t - m step`` in ``[0, step)``, which the core takes as one shorter step
+    on a copy, so every snapshot is at its exact time while the run keeps one step."""
     if isinstance(snapshots, (str, bytes)) or snapshots is None:
         raise InvalidTypeError(f"snapshots must be a sequence of times, got {snapshots!r}")
     try:
@@ -94,33 +116,43 @@ def pauses_for(snapshots, step: float, steps: int) -> list[int]:
         raise InvalidTypeError(f"snapshots must be a sequence of times, got {snapshots!r}") from None
     if times.ndim != 1:
         raise InvalidParameterError(f"snapshots must be one-dimensional, got shape {times.shape}")
-    pauses = []
+    duration = steps * step
+    pauses, offsets, exact = [], [], []
     for time in times:
-        if not math.isfinite(time) or time <= 0.0 or time > steps * step * (1 + 1e-12):
-            raise InvalidParameterError(f"snapshot time {time} must lie in (0, duration = {steps * step:g}]")
-        pauses.append(max(1, round(time / step)))
-    if any(b <= a for a, b in itertools.pairwise(pauses)):
-        raise InvalidParameterError(
-            f"snapshot times must increase and be at least one step ({step}) apart, got {list(times)}"
-        )
-    return pauses
+        if not math.isfinite(time) or time <= 0.0 or time > duration * (1 + 1e-12):
+            raise InvalidParameterError(f"snapshot time {time} must lie in (0, duration = {duration:g}]")
+        ratio = time / step
+        nearest = round(ratio)
+        if abs(ratio - nearest) <= _ON_BOUNDARY * max(nearest, 1) and nearest >= 1:
+            pause, offset = min(nearest, steps), 0.0
+        else:
+            pause = min(math.floor(ratio), steps - 1)
+            offset = min(max(time - pause * step, 0.0), math.nextafter(step, 0.0))
+        pauses.append(pause)
+        offsets.append(offset)
+        exact.append(pause * step + offset)
+    if any(b <= a for a, b in itertools.pairwise(zip(pauses, offsets, strict=True))):
+        raise InvalidParameterError(f"snapshot times must increase, got {list(times)}")
+    return pauses, offsets, np.asarray(exact, dtype=float)
 
 
 def check_snapshot_memory(grid, count: int) -> None:
-    """Refuse, before the run, snapshots that could not be kept in memory (two copies at the hand-over)."""
+    """Refuse, before the run, snapshots that could not be kept in memory: each holds the wavefunction
+    (16 bytes a point) and its momentum density (8), two copies at the hand-over."""
     from ..specs.grid import _memory_bytes
 
-    need = 2 * 16 * count * grid.points
+    need = 2 * 24 * count * grid.points
     have = _memory_bytes()
     if need > have:
         raise InvalidParameterError(
             f"{count} snapshots of {grid.points} points need about {need / 2**30:.1f} GiB, more than this "
-            f"machine's {have / 2**30:.1f} GiB; keep at most {have // (32 * grid.points)} snapshots"
+            f"machine's {have / 2**30:.1f} GiB; keep at most {have // (48 * grid.points)} snapshots"
         )
 
 
-def check_detector(detector) -> tuple[float, float] | None:
-    """``detector=(left, right)`` validated: two finite numbers with ``left <= right`` (or None)."""
+def check_detector(detector, grid=None) -> tuple[float, float] | None:
+    """``detector=(left, right)`` validated: two finite numbers with ``left <= right`` inside the box
+    ``[grid.start, grid.stop]`` when ``grid`` is given (or None)."""
     if detector is None:
         return None
     try:
@@ -131,17 +163,105 @@ def check_detector(detector) -> tuple[float, float] | None:
     right = _checks.real("detector right", right)
     if left > right:
         raise InvalidParameterError(f"detector left={left} must be <= right={right}")
+    if grid is not None and (left < grid.start or right > grid.stop):
+        raise InvalidParameterError(
+            f"detector ({left:g}, {right:g}) leaves the box [{grid.start:g}, {grid.stop:g}]: "
+            "put both edges inside it"
+        )
     return left, right
+
+
+def default_detector(system: System, detector):
+    """The one rule for runs that count R and T by default: ``detector=None`` is the disorder region
+    ``(disorder.start, disorder.stop)`` when the system has disorder (and stays None otherwise)."""
+    if detector is None and isinstance(system, System) and system.disorder is not None:
+        return (system.disorder.start, system.disorder.stop)
+    return detector
 
 
 def detector_bounds(system: System, detector) -> tuple[int, int] | None:
     """``(left_end, right_start)`` of ``detector=(left, right)``: points ``x < left`` and ``x > right``."""
-    detector = check_detector(detector)
+    detector = check_detector(detector, system.grid)
     if detector is None:
         return None
     left, right = detector
     x = system.grid.x
     return int(np.searchsorted(x, left, side="left")), int(np.searchsorted(x, right, side="right"))
+
+
+@dataclass(frozen=True)
+class RunArguments:
+    """A run's arguments, checked once; :func:`propagate`, :func:`mottle.ensemble`, the classical
+    ensemble, studies and :mod:`mottle.reference` all build theirs with :func:`run_arguments`.
+
+    ``step`` is the step used (``duration / steps``, see :data:`STEP_CHANGE`); snapshot ``s`` is at
+    ``times[s] = pauses[s] * step + offsets[s]``.
+    """
+
+    duration: float
+    requested_step: float
+    step: float
+    steps: int
+    pauses: tuple[int, ...]
+    offsets: tuple[float, ...]
+    times: np.ndarray
+    detector: tuple[float, float] | None
+    bounds: tuple[int, int] | None
+    splitting: str
+
+    def core_pauses(self) -> dict:
+        """What the core reads of the snapshots."""
+        return {"steps": self.steps, "pauses": list(self.pauses), "offsets": list(self.offsets)}
+
+
+def run_arguments(
+    system: System,
+    duration,
+    step,
+    snapshots=(),
+    detector=None,
+    order=2,
+    splitting=None,
+    default_to_disorder: bool = False,
+    warn: bool = True,
+) -> RunArguments:
+    """Check a run's duration, step, snapshots, detector and splitting once (no large allocation).
+
+    With ``default_to_disorder`` the detector defaults to the disorder region
+    (:func:`default_detector`). ``warn`` issues the :class:`StepChangedWarning` when the step used
+    differs from ``step`` by more than :data:`STEP_CHANGE`.
+    """
+    from ..errors import StepChangedWarning
+
+    check_system(system)
+    duration = _checks.positive("duration", duration)
+    step = _checks.positive("step", step)
+    splitting = resolve_splitting(order, splitting)
+    steps, used = steps_for(duration, step)
+    if warn and abs(used - step) > STEP_CHANGE * step:
+        warnings.warn(
+            f"duration {duration:g} is not a whole number of steps of {step:g}: running {steps} equal "
+            f"steps of {used:.6g} ({100 * (1 - used / step):.3g}% shorter); pass step={used:.6g} or a "
+            f"duration that is a multiple of the step to silence this",
+            StepChangedWarning,
+            stacklevel=3,
+        )
+    pauses, offsets, times = pauses_for(snapshots, used, steps)
+    if default_to_disorder:
+        detector = default_detector(system, detector)
+    detector = check_detector(detector, system.grid)
+    return RunArguments(
+        duration=duration,
+        requested_step=step,
+        step=used,
+        steps=steps,
+        pauses=tuple(pauses),
+        offsets=tuple(offsets),
+        times=times,
+        detector=detector,
+        bounds=detector_bounds(system, detector),
+        splitting=splitting,
+    )
 
 
 def resolve_splitting(order, splitting) -> str:
@@ -265,8 +385,8 @@ def check_system(system) -> None:
 def prepare_single_run(system, packet, duration, step, order, seed, index, snapshots, detector, splitting):
     """Validate a single run's arguments (shared by the core's and the reference's ``propagate``).
 
-    Returns ``(packet, steps, pauses, detector bounds, splitting, potential)``, the
-    packet resolved to realization ``index``'s and the potential realized.
+    Returns ``(packet, arguments, potential)``: the packet resolved to realization
+    ``index``'s, the :class:`RunArguments` and the potential realized.
     """
     check_system(system)
     seed = _checks.integer("seed", seed, minimum=0)
@@ -275,19 +395,14 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
         packet.validate(system.grid)
         packet = packet.packet(seed, index)  # RandomPacket / PacketList: realization `index`'s packet
     check_packet(system, packet)
-    duration = _checks.positive("duration", duration)
-    step = _checks.positive("step", step)
-    splitting = resolve_splitting(order, splitting)
-    steps = steps_for(duration, step)
-    pauses = pauses_for(snapshots, step, steps)
-    check_snapshot_memory(system.grid, len(pauses))
-    bounds = detector_bounds(system, detector)
+    arguments = run_arguments(system, duration, step, snapshots, detector, order, splitting)
+    check_snapshot_memory(system.grid, len(arguments.pauses))
 
     from .realize import realize
 
     potential = realize(system, seed, index)
-    warn_if_coarse(system, packet, step, potential)
-    return packet, steps, pauses, bounds, splitting, potential
+    warn_if_coarse(system, packet, arguments.step, potential)
+    return packet, arguments, potential
 
 
 def propagate(
@@ -304,25 +419,29 @@ def propagate(
     precision: str = "double",
     classical: bool = True,
 ) -> Run:
-    """Propagate ``packet`` in ``system`` for ``duration`` in steps of ``step``.
+    """Propagate ``packet`` in ``system`` for ``duration`` in steps of about ``step``.
 
     The disorder (if any) is realization ``index`` of ``seed``, the one
     :func:`mottle.realize` returns. ``order=2`` is Strang splitting, ``order=4``
     the Blanes-Moan composition (``splitting="yoshida"`` picks Yoshida's).
-    ``duration`` must be a whole number of steps; snapshot times are rounded to
-    the nearest step (``Run.times`` holds them). The GIL is released while the
-    core runs and Ctrl-C stops it within a fraction of a second.
+    A ``duration`` that is not a whole number of steps runs ``ceil(duration / step)``
+    equal steps (``Run.step``; :class:`mottle.errors.StepChangedWarning` when it is more
+    than 1% shorter than ``step``). Snapshots are at their exact times: one between two
+    step boundaries is taken on a copy advanced by one shorter step from the boundary
+    before it, while the run goes on with its one step. ``detector=(left, right)`` must
+    lie inside the box. The GIL is released while the core runs and Ctrl-C stops it
+    within a fraction of a second.
     """
     _checks.choice("precision", precision, PRECISIONS)
-    single = prepare_single_run(
+    packet, arguments, potential = prepare_single_run(
         system, packet, duration, step, order, seed, index, snapshots, detector, splitting
     )
-    packet, steps, pauses, bounds, splitting, potential = single
+    bounds = arguments.bounds
     psi0 = packet.values(system.grid).astype(np.complex128)
     start = initial_phase_space(system, packet) if classical else None
     out = _core.propagate_one(
-        _requests.setup(system, step, splitting),
-        _requests.run(steps, pauses, bounds, start, precision),
+        _requests.setup(system, arguments.step, arguments.splitting),
+        _requests.run(arguments.steps, arguments.pauses, arguments.offsets, bounds, start, precision),
         system.kinetic_table(),
         system.absorption(),
         potential,
@@ -333,7 +452,7 @@ def propagate(
     classical_position = np.where(absorbed, np.nan, out["classical_position"]) if classical else None
     classical_momentum = np.where(absorbed, np.nan, out["classical_momentum"]) if classical else None
     return Run(
-        times=np.asarray(pauses, dtype=float) * step,
+        times=arguments.times,
         psi=out["psi"],
         snapshots=out["snapshots"],
         norm=float(last["norm"][0]),
@@ -354,4 +473,8 @@ def propagate(
         classical_momentum=classical_momentum,
         x=system.grid.x,
         dx=system.grid.dx,
+        step=arguments.step,
+        participation=seen["participation"],
+        momentum_density=np.fft.fftshift(out["momentum_density"], axes=-1),
+        k=np.fft.fftshift(np.asarray(system.grid.k)),
     )

@@ -35,6 +35,7 @@ an absorbing layer stops there and reads NaN.
 
 from __future__ import annotations
 
+import copy
 import math
 
 import numpy as np
@@ -166,6 +167,8 @@ class _Propagator:
             + (float(np.sum(density * self.potential)) + interaction) / in_box,
             "absorbed_left": self.absorbed_left,
             "absorbed_right": self.absorbed_right,
+            "participation": float(np.sum(density**2)) * self.dx / (in_box * self.dx) ** 2,
+            "momentum_density": spectrum * self.dx**2 / (2.0 * math.pi),
             "reflection": math.nan,
             "transmission": math.nan,
         }
@@ -315,10 +318,10 @@ def propagate(
     Same arguments, validation and :class:`mottle.Run` fields as the core's
     (double precision only); see the module docstring for the conventions.
     """
-    single = prepare_single_run(
+    packet, arguments, potential = prepare_single_run(
         system, packet, duration, step, order, seed, index, snapshots, detector, splitting
     )
-    packet, steps, pauses, bounds, splitting, potential = single
+    bounds, step, steps, splitting = arguments.bounds, arguments.step, arguments.steps, arguments.splitting
     grid = system.grid
     x = grid.start + np.arange(grid.points) * grid.dx
     k = np.asarray(grid.k)
@@ -331,17 +334,28 @@ def propagate(
 
     kept, seen, trajectory = [], [], []
     done = 0
-    for pause in pauses:
+    for pause, offset in zip(arguments.pauses, arguments.offsets, strict=True):
         psi = propagator.advance(psi, pause - done)
         if particle is not None:
             particle.evolve((pause - done) * step, (pause - done) * substeps)
-            nan = particle.absorbed
-            trajectory.append(
-                (math.nan if nan else particle.position, math.nan if nan else particle.momentum)
-            )
         done = pause
-        kept.append(psi.copy())
-        seen.append(propagator.observe(psi, x, k, bounds))
+        now, observer = psi, propagator
+        if offset > 0.0:
+            # Between step boundaries: a copy advanced by one shorter step; the run goes on.
+            observer = _Propagator(system, potential, offset, splitting)
+            observer.absorbed_left, observer.absorbed_right = (
+                propagator.absorbed_left,
+                propagator.absorbed_right,
+            )
+            now = observer.advance(psi.copy(), 1)
+        if particle is not None:
+            moved = copy.copy(particle)
+            if offset > 0.0:
+                moved.evolve(offset, substeps)
+            nan = moved.absorbed
+            trajectory.append((math.nan if nan else moved.position, math.nan if nan else moved.momentum))
+        kept.append(now.copy())
+        seen.append(observer.observe(now, x, k, bounds))
     psi = propagator.advance(psi, steps - done)
     last = propagator.observe(psi, x, k, bounds)
 
@@ -350,7 +364,7 @@ def propagate(
 
     classical_path = np.array(trajectory, dtype=float).reshape(len(trajectory), 2)
     return Run(
-        times=np.asarray(pauses, dtype=float) * step,
+        times=arguments.times,
         psi=psi,
         snapshots=np.array(kept, dtype=np.complex128).reshape(len(kept), grid.points),
         norm=last["norm"],
@@ -371,6 +385,13 @@ def propagate(
         classical_momentum=classical_path[:, 1] if classical else None,
         x=grid.x,
         dx=grid.dx,
+        step=step,
+        participation=column("participation"),
+        momentum_density=np.fft.fftshift(
+            np.array([o["momentum_density"] for o in seen], dtype=float).reshape(len(seen), grid.points),
+            axes=-1,
+        ),
+        k=np.fft.fftshift(k),
     )
 
 

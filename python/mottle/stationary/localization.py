@@ -148,12 +148,12 @@ class Lyapunov:
         )
 
 
-def _region_points(system: System, region) -> tuple[int, int]:
+def _region_points(system: System, region, caller: str = "lyapunov") -> tuple[int, int]:
     grid = system.grid
     if region is None:
         if system.disorder is None:
             raise InvalidParameterError(
-                "lyapunov needs a region: the system has no disorder to default it to; "
+                f"{caller} needs a region: the system has no disorder to default it to; "
                 "pass region=(start, stop)"
             )
         start, stop = system.disorder.start, system.disorder.stop
@@ -323,19 +323,29 @@ def transmission_spectrum(
     realizations: int = 1,
     seed: int = 0,
     threads: int | None = None,
+    region=None,
 ) -> TransmissionSpectrum:
-    """Stationary transmission ``T(E)`` per realization and energy through the whole potential.
+    """Stationary transmission ``T(E)`` per realization and energy through the potential.
 
     The potential of realization ``r`` (``mottle.realize(system, seed, r)``:
-    deterministic part plus disorder) fills the box; beyond its first and
-    last grid points lie leads of constant potential equal to those points'
-    (zero for a potential that vanishes at the box ends), and the wave comes
-    in from the left: ``T = (v_right / v_left) |t|**2``. The end points belong
-    to the leads, so the disorder must stay clear of them. Continuum cells
-    are crossed exactly (piecewise-constant potential), so a barrier whose
-    edges fall on cell boundaries gives the exact ``T``. Absorbers play no
-    part (the leads replace them). Returns a :class:`TransmissionSpectrum`
-    with ``Stat`` records of ``T`` and ``ln T`` per energy.
+    deterministic part plus disorder) on the grid points of ``region =
+    (start, stop)`` (``start <= x < stop``, as in :func:`lyapunov`; by default
+    the whole box) is the sample; beyond its first and last points lie leads
+    of constant potential equal to those points' (zero for a potential that
+    vanishes there), and the wave comes in from the left:
+    ``T = (v_right / v_left) |t|**2``. The end points belong to the leads, so
+    the disorder must stay clear of them. Absorbers play no part (the leads
+    replace them). Returns a :class:`TransmissionSpectrum` with ``Stat``
+    records of ``T`` and ``ln T`` per energy.
+
+    Sharp barriers: each grid point's value fills its cell ``[x_j - dx/2,
+    x_j + dx/2)``, and continuum cells are crossed exactly (piecewise-constant
+    potential), so ``T`` is exact for a barrier only when its edges lie on
+    cell boundaries, i.e. half-way between grid points: place a barrier of
+    width ``w`` at ``x_j - dx/2`` with ``w`` a whole number of ``dx``
+    (``mottle.Barrier`` cell-averages an edge that falls inside a cell, which
+    is a slightly different barrier: its ``T`` then differs from the
+    textbook formula by about the fraction of a cell the edge moved).
     """
     _check_linear(system)
     energies, _ = _energies(energies)
@@ -343,19 +353,32 @@ def transmission_spectrum(
     seed = _checks.integer("seed", seed, minimum=0)
     threads = _checks.threads(threads)
     grid = system.grid
+    if region is None:
+        first, end = 0, grid.points
+    else:
+        first, end = _region_points(system, region, "transmission_spectrum")
+        if end - first < 2:
+            raise InvalidParameterError(
+                f"region {tuple(region)} holds {end - first} grid point: the sample needs at least two "
+                "(its first and last are the leads)"
+            )
+    x = grid.x
     if system.disorder is not None:
         for term in system.disorder.terms:
-            if term.start <= grid.x[0] or term.stop > grid.x[-1]:
+            # A disorder term partly inside the region is cut by it; its points must not be the leads.
+            inside = (term.start < x[end - 1]) and (term.stop > x[first])
+            if inside and (term.start <= x[first] or term.stop > x[end - 1]):
                 raise InvalidParameterError(
-                    f"{type(term).__name__} region [{term.start}, {term.stop}) reaches a box end point, "
-                    f"which belongs to a lead: keep start > {grid.x[0]:g} and stop <= {grid.x[-1]:g}"
+                    f"{type(term).__name__} region [{term.start}, {term.stop}) reaches an end point of "
+                    f"the sample [{x[first]:g}, {x[end - 1]:g}], which belongs to a lead: keep "
+                    f"start > {x[first]:g} and stop <= {x[end - 1]:g}"
                 )
     static = system.static_potential()
-    wavenumbers = _lead_wavenumbers(system, energies, float(static[0]), "left")
-    _lead_wavenumbers(system, energies, float(static[-1]), "right")
+    wavenumbers = _lead_wavenumbers(system, energies, float(static[first]), "left")
+    _lead_wavenumbers(system, energies, float(static[end - 1]), "right")
     _check_memory(realizations, energies.size)
     line, terms, static, medium, config = _core_inputs(system, seed, realizations, threads)
-    table = _core.log_transmissions_of(line, terms, static, medium, energies.tolist(), config)
+    table = _core.log_transmissions_of(line, terms, static, medium, (first, end), energies.tolist(), config)
     return TransmissionSpectrum(energies=energies, wavenumbers=wavenumbers, log_samples=table, seed=seed)
 
 

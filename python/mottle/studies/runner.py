@@ -142,7 +142,7 @@ def run_study(
     store, opened for reading.
     """
     if not isinstance(study, Study):
-        study = load_study(study)
+        study = load_study(study, store)
     display = _Display() if progress else _Silent()
     total = len(study.points)
     names = short_names(study.points[0].parameters)

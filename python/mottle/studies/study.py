@@ -37,8 +37,10 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import math
 import os
 import re
+import shutil
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -173,16 +175,20 @@ def detector_of(resolved: Mapping) -> tuple[float, float] | None:
 
 def _check_run(resolved: Mapping, system) -> None:
     from .. import _checks
-    from ..dynamics.propagate import detector_bounds, pauses_for, resolve_splitting, steps_for
+    from ..dynamics.propagate import (
+        default_detector,
+        detector_bounds,
+        pauses_for,
+        resolve_splitting,
+        steps_for,
+    )
 
     run = resolved["run"]
     duration = _in(("run", "duration"), lambda: _checks.positive("duration", run["duration"]))
     step = _in(("run", "step"), lambda: _checks.positive("step", run["step"]))
-    steps = _in(("run", "step"), lambda: steps_for(duration, step))
-    _in(("run", "snapshots"), lambda: pauses_for(run.get("snapshots", []), step, steps))
-    detector = detector_of(resolved)
-    if detector is None and system.disorder is not None:
-        detector = (system.disorder.start, system.disorder.stop)
+    steps, used = steps_for(duration, step)
+    _in(("run", "snapshots"), lambda: pauses_for(run.get("snapshots", []), used, steps))
+    detector = default_detector(system, detector_of(resolved))
     _in(("run", "detector"), lambda: detector_bounds(system, detector))
     _in(("run", "order"), lambda: resolve_splitting(run.get("order", 2), run.get("splitting")))
     _in(("run", "realizations"), lambda: _checks.integer("realizations", run["realizations"], minimum=1))
@@ -392,8 +398,49 @@ def _load_tables(document: dict, root: Path, problems: _Problems) -> dict[str, n
     return tables
 
 
-def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> Study:
-    """Validate a study given as TOML text (``root`` resolves relative .npy file names)."""
+def point_bytes(resolved: Mapping, system) -> int:
+    """About how many bytes one point's result takes in a store: the profiles (density, log-density,
+    their standard errors and the momentum density at each snapshot), ``x`` and ``k``, and the
+    per-realization samples (five scalars, three per snapshot, at most 256 spectrum modes)."""
+    from ..limits import SPECTRUM_MODES
+
+    run = resolved["run"]
+    points = system.grid.points
+    snapshots = len(run.get("snapshots", []) or [])
+    realizations = int(run["realizations"])
+    return 8 * (points * (2 + 5 * snapshots) + realizations * (5 + 3 * snapshots + SPECTRUM_MODES))
+
+
+def _check_store_fits(base: dict, sweep: dict, tables, store_dir: Path, problems) -> None:
+    """Refuse, before enumerating the points, a sweep whose store would not fit in ``store_dir``."""
+    count = math.prod(len(values) for values in sweep.values())
+    first = _fill_defaults(_apply(base, {path: values[0] for path, values in sweep.items()}))
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            each = point_bytes(first, build_system(first, tables))
+    except (_KeyedError, KeyError, TypeError, ValueError):
+        return  # the point-by-point validation names what is wrong with it
+    where = store_dir if store_dir.is_dir() else Path(".")
+    free = shutil.disk_usage(where).free
+    if count * each > free:
+        problems.add(
+            ("sweep",),
+            f"{count:,} points of about {each / 2**20:.3g} MiB each need about "
+            f"{count * each / 2**30:.4g} GiB "
+            f"for the store, more than the {free / 2**30:.4g} GiB free in {where.resolve()}: sweep at most "
+            f"{free // each:,} points (fewer values, or fewer keys)",
+        )
+        problems.raise_if_any()
+
+
+def parse_study(
+    text: str, source: str = "<study>", root: str | Path = ".", store: str | Path | None = None
+) -> Study:
+    """Validate a study given as TOML text (``root`` resolves relative .npy file names).
+
+    A sweep whose store (``store``, by default in ``root``) would not fit on its disk is refused at
+    once, before its points are enumerated."""
     problems = _Problems(source, text)
     document = _check_document(_parse(text, source), problems)
     tables = _load_tables(document, Path(root), problems)
@@ -420,6 +467,8 @@ def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> S
     for path, message in missing:
         problems.add(path, message)
     problems.raise_if_any()
+    if sweep:
+        _check_store_fits(base, sweep, tables, Path(store).parent if store else Path(root), problems)
 
     points = []
     failures: dict[tuple[str, str], list[int]] = {}
@@ -451,8 +500,11 @@ def parse_study(text: str, source: str = "<study>", root: str | Path = ".") -> S
     return Study(text, source, document, sweep, tuple(points), tables)
 
 
-def load_study(path: str | os.PathLike) -> Study:
-    """Read and validate a study file; raises :class:`StudyError` listing every problem found."""
+def load_study(path: str | os.PathLike, store: str | os.PathLike | None = None) -> Study:
+    """Read and validate a study file; raises :class:`StudyError` listing every problem found.
+
+    ``store`` is where its results will go (by default next to the study file): a sweep whose
+    store would not fit on that disk is refused at once."""
     path = Path(path)
     try:
         text = path.read_text(encoding="utf-8")
@@ -460,7 +512,7 @@ def load_study(path: str | os.PathLike) -> Study:
         raise StudyError([f"{path}: no such study file"]) from None
     except (OSError, UnicodeDecodeError) as error:
         raise StudyError([f"{path}: cannot read the study file: {error}"]) from None
-    return parse_study(text, str(path), path.parent)
+    return parse_study(text, str(path), path.parent, store)
 
 
 __all__ = ["Study", "StudyError", "StudyPoint", "load_study", "parse_study", "point_seed"]

@@ -7,6 +7,7 @@ use pyo3::types::PyDict;
 use super::disorder::LineRequest;
 use super::dispersion::ModelRequest;
 use super::error::to_pyerr;
+use super::propagate::pauses;
 use super::request::request;
 use super::{in_pool, run_detached, table};
 use crate::classical::Landscape;
@@ -26,6 +27,8 @@ request! {
         step: f64,
         steps: usize,
         pauses: Vec<usize>,
+        /// Time past each pause's whole steps, `0 <= offset < step`.
+        offsets: Vec<f64>,
         left_layer_end: usize,
         right_layer_start: usize,
         threads: usize,
@@ -59,6 +62,7 @@ fn classical_particles<'py>(
         model.kinetic(line.dx)
     })();
     let kinetic = checked.map_err(|error| to_pyerr(py, error))?;
+    let pauses = pauses(&config.pauses, &config.offsets).map_err(|error| to_pyerr(py, error))?;
     let spec = ClassicalSpec {
         center: config.center,
         position_spread: config.position_spread,
@@ -69,7 +73,7 @@ fn classical_particles<'py>(
         index: config.index,
         step: config.step,
         steps: config.steps,
-        pauses: config.pauses.clone(),
+        pauses,
     };
     let output = run_detached(py, |cancel| {
         let landscape = Landscape {
@@ -92,6 +96,23 @@ fn classical_particles<'py>(
     dict.set_item(
         "counts",
         table(py, output.counts, spec.pauses.len(), points)?,
+    )?;
+    let snapshots = spec.pauses.len();
+    let column = |f: fn(&crate::classical::Particle) -> f64| -> Vec<f64> {
+        output.trail.iter().map(f).collect()
+    };
+    dict.set_item(
+        "trail_position",
+        table(py, column(|p| p.position), config.particles, snapshots)?,
+    )?;
+    dict.set_item(
+        "trail_momentum",
+        table(py, column(|p| p.momentum), config.particles, snapshots)?,
+    )?;
+    let absorbed: Vec<i8> = output.trail.iter().map(|p| p.absorbed).collect();
+    dict.set_item(
+        "trail_absorbed",
+        table(py, absorbed, config.particles, snapshots)?,
     )?;
     dict.set_item("substeps", output.substeps)?;
     Ok(dict)

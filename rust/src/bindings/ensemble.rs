@@ -9,7 +9,7 @@ use pyo3::types::{PyDict, PyList};
 use super::disorder::{terms, TermRequest};
 use super::error::to_pyerr;
 use super::packets::PacketsRequest;
-use super::propagate::{detector, Precision, SetupRequest};
+use super::propagate::{detector, pauses as pauses_of, Precision, SetupRequest};
 use super::request::request;
 use super::spectrum::SpectrumRequest;
 use super::{in_pool, run_detached, table};
@@ -23,6 +23,8 @@ request! {
     pub(crate) struct EnsembleRequest("ensemble run") {
         steps: usize,
         pauses: Vec<usize>,
+        /// Time past each pause's whole steps, `0 <= offset < step`.
+        offsets: Vec<f64>,
         detector: Option<(usize, usize)>,
         seed: u64,
         start: usize,
@@ -83,6 +85,12 @@ fn chunk_dict<'py>(
         ),
         ("momentum", chunk.momentum, snapshots, points),
         ("spectrum", chunk.spectrum, chunk.count, modes),
+        (
+            "spectrum_settling",
+            chunk.spectrum_settling,
+            chunk.count,
+            2 * modes,
+        ),
     ] {
         dict.set_item(name, table(py, values, rows, columns)?)?;
     }
@@ -109,6 +117,7 @@ fn ensemble_chunks<'py>(
     let EnsembleRequest {
         steps,
         pauses,
+        offsets,
         detector: bounds,
         seed,
         start,
@@ -127,7 +136,7 @@ fn ensemble_chunks<'py>(
             disorder: terms(&disorder)?,
             packets: packets.into_source(),
             steps,
-            pauses,
+            pauses: pauses_of(&pauses, &offsets)?,
             detector: detector(bounds),
             seed,
             spectrum: spectrum.map(SpectrumRequest::spectrum),

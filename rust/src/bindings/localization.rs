@@ -75,14 +75,17 @@ fn lyapunov_exponents_of<'py>(
     table(py, values, count, energies.len())
 }
 
-/// `ln T` of each realization and energy through the whole potential: `(count, energies)`.
+/// `ln T` of each realization and energy through the points `region` of the
+/// potential (its first and last points are the leads): `(count, energies)`.
 #[pyfunction]
+#[allow(clippy::too_many_arguments)]
 fn log_transmissions_of<'py>(
     py: Python<'py>,
     line: LineRequest,
     disorder: Vec<TermRequest>,
     static_potential: PyReadonlyArray1<'py, f64>,
     model: ModelRequest,
+    region: (usize, usize),
     energies: Vec<f64>,
     realizations: RealizationsRequest,
 ) -> PyResult<Bound<'py, PyArray2<f64>>> {
@@ -97,7 +100,15 @@ fn log_transmissions_of<'py>(
     let (start, count) = (realizations.start, realizations.count);
     let values = run_detached(py, |cancel| {
         in_pool(realizations.threads, || {
-            log_transmissions(&sample, medium, &energies, start, count, cancel)
+            log_transmissions(
+                &sample,
+                medium,
+                region.0..region.1,
+                &energies,
+                start,
+                count,
+                cancel,
+            )
         })
     })?;
     table(py, values, count, energies.len())

@@ -14,7 +14,7 @@ use super::request::request;
 use super::{run_detached, table};
 use crate::error::CoreError;
 use crate::observables::{Detector, Observation};
-use crate::propagate::{propagate, Output, Request};
+use crate::propagate::{propagate, Output, Pause, Request};
 use crate::real::Real;
 use crate::splitting::Splitting;
 use crate::stepper::{Setup, Shared};
@@ -52,6 +52,22 @@ impl SetupRequest {
     }
 }
 
+/// Pauses from their whole steps and the offsets past them (the same length).
+pub(crate) fn pauses(steps: &[usize], offsets: &[f64]) -> Result<Vec<Pause>, CoreError> {
+    if steps.len() != offsets.len() {
+        return Err(CoreError::InvalidInput(format!(
+            "{} pauses but {} offsets",
+            steps.len(),
+            offsets.len()
+        )));
+    }
+    Ok(steps
+        .iter()
+        .zip(offsets)
+        .map(|(&steps, &offset)| Pause { steps, offset })
+        .collect())
+}
+
 /// The detector `(left_end, right_start)`: grid points left of and right of it.
 pub(crate) fn detector(bounds: Option<(usize, usize)>) -> Option<Detector> {
     bounds.map(|(left_end, right_start)| Detector {
@@ -73,6 +89,8 @@ request! {
     pub(crate) struct RunRequest("run") {
         steps: usize,
         pauses: Vec<usize>,
+        /// Time past each pause's whole steps, `0 <= offset < step`.
+        offsets: Vec<f64>,
         keep_snapshots: bool,
         detector: Option<(usize, usize)>,
         classical: Option<ClassicalStart>,
@@ -133,6 +151,7 @@ pub(crate) fn observations_dict<'py>(
     dict.set_item("position_squared", column(|o| o.position_squared))?;
     dict.set_item("momentum", column(|o| o.momentum))?;
     dict.set_item("energy", column(|o| o.energy))?;
+    dict.set_item("participation", column(|o| o.participation))?;
     dict.set_item("reflection", column(|o| o.reflection))?;
     dict.set_item("transmission", column(|o| o.transmission))?;
     Ok(dict)
@@ -165,7 +184,7 @@ fn propagate_one<'py>(
             psi,
             potential,
             steps: run.steps,
-            pauses: run.pauses.clone(),
+            pauses: pauses(&run.pauses, &run.offsets)?,
             keep_snapshots: run.keep_snapshots,
             detector: detector(run.detector),
             classical,
@@ -185,6 +204,11 @@ fn propagate_one<'py>(
     let snapshot_count = output.snapshots.len();
     let flat: Vec<Complex64> = output.snapshots.into_iter().flatten().collect();
     dict.set_item("snapshots", table(py, flat, snapshot_count, points)?)?;
+    let momentum: Vec<f64> = output.momentum_densities.into_iter().flatten().collect();
+    dict.set_item(
+        "momentum_density",
+        table(py, momentum, snapshot_count, points)?,
+    )?;
     dict.set_item("observations", observations_dict(py, &output.observations)?)?;
     dict.set_item(
         "last",
