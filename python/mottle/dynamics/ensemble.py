@@ -185,10 +185,11 @@ class EnsembleResult:
                 continue  # a field added since the store was written keeps its default
             value = np.asarray(arrays[item.name])
             if item.name in ("count", "seed"):
-                value = int(value)
+                values[item.name] = int(value)
             elif item.name == "step":
-                value = float(value)
-            values[item.name] = value
+                values[item.name] = float(value)
+            else:
+                values[item.name] = value
         return cls(samples=samples, **values)
 
 
@@ -257,8 +258,6 @@ class _Plan:
     modes_info: tuple
     step: float
     duration: float
-
-
 
 
 def plan(

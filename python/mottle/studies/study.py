@@ -435,7 +435,7 @@ def _check_store_fits(base: dict, sweep: dict, tables, store_dir: Path, problems
 
 
 def parse_study(
-    text: str, source: str = "<study>", root: str | Path = ".", store: str | Path | None = None
+    text: str, source: str = "<study>", root: str | Path = ".", store: str | os.PathLike | None = None
 ) -> Study:
     """Validate a study given as TOML text (``root`` resolves relative .npy file names).
 
