@@ -75,13 +75,18 @@ def setup(system: System, step: float, splitting: str) -> _Setup:
     }
 
 
+def _offsets(pauses: Sequence[int], offsets: Sequence[float] | None) -> list[float]:
+    """The time past each pause's whole steps (none: every pause on a step boundary)."""
+    return [0.0] * len(pauses) if offsets is None else [float(o) for o in offsets]
+
+
 def run(
     steps: int,
     pauses: Sequence[int],
-    offsets: Sequence[float],
     detector: tuple[int, int] | None,
     classical: tuple[float, float] | None,
     precision: str,
+    offsets: Sequence[float] | None = None,
 ) -> _Run:
     """A single run: steps, pauses, detector, where its classical particle starts (or None)."""
     start: _ClassicalStart | None = (
@@ -90,7 +95,7 @@ def run(
     return {
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
-        "offsets": [float(o) for o in offsets],
+        "offsets": _offsets(pauses, offsets),
         "keep_snapshots": True,
         "detector": detector,
         "classical": start,
@@ -120,7 +125,6 @@ def spectrum(
 def ensemble_run(
     steps: int,
     pauses: Sequence[int],
-    offsets: Sequence[float],
     detector: tuple[int, int] | None,
     seed: int,
     precision: str,
@@ -128,12 +132,13 @@ def ensemble_run(
     start: int = 0,
     count: int = 0,
     threads: int = 1,
+    offsets: Sequence[float] | None = None,
 ) -> _EnsembleRun:
     """An ensemble's share of work: realizations ``start .. start + count`` on ``threads`` threads."""
     return {
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
-        "offsets": [float(o) for o in offsets],
+        "offsets": _offsets(pauses, offsets),
         "detector": detector,
         "seed": int(seed),
         "start": int(start),
@@ -198,8 +203,8 @@ def particles(
     step: float,
     steps: int,
     pauses: Sequence[int],
-    offsets: Sequence[float],
     threads: int,
+    offsets: Sequence[float] | None = None,
 ) -> _Particles:
     """A classical ensemble: particles drawn from a packet's Wigner distribution, and their run."""
     left_end, right_start = system.layer_bounds()
@@ -214,7 +219,7 @@ def particles(
         "step": float(step),
         "steps": int(steps),
         "pauses": [int(p) for p in pauses],
-        "offsets": [float(o) for o in offsets],
+        "offsets": _offsets(pauses, offsets),
         "left_layer_end": left_end,
         "right_layer_start": right_start,
         "threads": int(threads),

@@ -154,8 +154,8 @@ def classical_ensemble(
         arguments.step,
         arguments.steps,
         arguments.pauses,
-        arguments.offsets,
         threads,
+        offsets=arguments.offsets,
     )
     out = _core.classical_particles(
         _requests.line(grid), _requests.model(model), config, realize(system, seed, index)

@@ -297,7 +297,13 @@ def plan(
     return _Plan(
         setup=_requests.setup(system, arguments.step, arguments.splitting),
         run=_requests.ensemble_run(
-            arguments.steps, arguments.pauses, arguments.offsets, arguments.bounds, seed, precision, spectrum
+            arguments.steps,
+            arguments.pauses,
+            arguments.bounds,
+            seed,
+            precision,
+            spectrum,
+            offsets=arguments.offsets,
         ),
         kinetic=system.kinetic_table(),
         absorption=system.absorption(),

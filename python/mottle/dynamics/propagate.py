@@ -441,7 +441,7 @@ def propagate(
     start = initial_phase_space(system, packet) if classical else None
     out = _core.propagate_one(
         _requests.setup(system, arguments.step, arguments.splitting),
-        _requests.run(arguments.steps, arguments.pauses, arguments.offsets, bounds, start, precision),
+        _requests.run(arguments.steps, arguments.pauses, bounds, start, precision, offsets=arguments.offsets),
         system.kinetic_table(),
         system.absorption(),
         potential,
