@@ -146,7 +146,7 @@ def test_rust_is_faster_and_agrees():
     # independent disorder streams: the estimates agree within their errors
     (mean, error), (other, other_error) = estimates["rust"], estimates["numpy"]
     assert abs(mean - other) < 4 * math.hypot(error, other_error)
-    # Floors against regressions (the machine is shared, so with margin). The 20x of the brief
+    # Floors against regressions (the machine is shared, so with margin). The 20x target (README)
     # holds against the plain numpy recursion; against the best vectorized numpy (~13 ns per site
     # and realization) the core is bound by its ChaCha8 disorder stream (see the printed split).
     assert timings["numpy"] / rust >= 3.0

@@ -89,7 +89,7 @@ def reflection_from_right_layer(ratio, hbar=1.0, mass=1.0, points=4096, length=5
 @pytest.mark.parametrize(
     ("ratio", "published"),
     [
-        # Reflection of the profile re-computed from Manolopoulos (2002), REFERENCES.md:
+        # Reflection of the profile re-computed from Manolopoulos (2002) (docs/validation.md):
         # E/E_min = 1 -> 6.6e-3, 2 -> 4.2e-4, 10 -> 2.5e-6.
         (1.0, 6.6e-3),
         (2.0, 4.2e-4),

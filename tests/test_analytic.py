@@ -18,7 +18,7 @@ from mottle.analysis.exact import (
     ("energy", "expected"),
     [
         # Griffiths, Introduction to Quantum Mechanics, 2nd ed. (2005), problem 2.33, V0 = a = 1
-        # (values as tabulated in REFERENCES.md).
+        # (values as tabulated in docs/validation.md).
         (0.25, 0.2368027308),
         (0.5, 0.4199743416),
         (1.0, 2.0 / 3.0),

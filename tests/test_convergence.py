@@ -60,8 +60,8 @@ def test_measured_order(propagate, splitting, order, counts):
 
 
 def test_blanes_moan_is_far_more_accurate_than_yoshida_at_equal_step():
-    # Blanes & Moan (2002) built their 6-stage method for a small error constant; REFERENCES.md
-    # records about 1000x below Yoshida's at equal step in a re-computation. We require 10x
+    # Blanes & Moan (2002) built their 6-stage method for a small error constant; here it is about
+    # 900x below Yoshida's at equal step (printed; benches/bench_splitting.py: ~330). We require 10x
     # (a wrong coefficient would leave order 2 or a constant like Yoshida's) and report the value.
     ratios = [error(mo.propagate, "yoshida", n) / error(mo.propagate, "blanes-moan", n) for n in (64, 128)]
     print(f"Yoshida / Blanes-Moan error ratio at equal step: {ratios}")

@@ -15,7 +15,7 @@ WAVENUMBER = 1.0
 
 def log_transmission_at_k0(length: float) -> tuple[np.ndarray, float]:
     """ln T(k ~ k0) per realization, energy-resolved from the runs (not the packet's ln T, which
-    averages T over the band: REFERENCES pitfall 4)."""
+    averages T over the band: docs/validation.md, pitfall 4)."""
     system = mo.System(GRID, disorder=mo.GaussianDisorder(0.25, 1.0, 0.0, length), absorber=mo.Absorber(50.0))
     packet = mo.GaussianPacket(-80.0, WAVENUMBER, 12.0)
     with warnings.catch_warnings():

@@ -24,7 +24,7 @@ def anderson(width, points=2**18):
     ("width", "realizations", "tolerance", "recomputed"),
     [
         # Thouless, in Ill-Condensed Matter (Les Houches 1978, publ. 1979): gamma = W**2 / (24 (4 - E**2)) per
-        # site; REFERENCES.md tolerances (1 % at W = 0.5, 3 % at W = 1) and its re-computed xi(0.5), xi(1.5).
+        # site, 1 % at W = 0.5, 3 % at W = 1, and the re-computed xi(0.5), xi(1.5) of docs/validation.md.
         (0.5, 576, 0.01, (359.4, 166.8)),
         (1.0, 24, 0.03, (89.2, 41.2)),
     ],
@@ -63,7 +63,7 @@ def continuum(disorder_for, dx, points, hbar=1.0, mass=1.0):
 
 
 def test_white_noise_against_born():
-    # gamma = m**2 D / (2 hbar**4 k**2) (REFERENCES.md: the weak-disorder expansion, e.g. Lifshits,
+    # gamma = m**2 D / (2 hbar**4 k**2) (the weak-disorder expansion, e.g. Lifshits,
     # Gredeskul & Pastur 1988); D/k**3 = 0.01 is weak. Cells of dx = 0.1 lower gamma by (k dx)**2/3 = 0.3 %.
     system = continuum(lambda a, b: mo.WhiteNoise(0.01, a, b), dx=0.1, points=2**19)
     born = mo.born_lyapunov(system, 0.5)
@@ -84,7 +84,7 @@ def test_born_follows_hbar_and_mass():
 
 def test_gaussian_disorder_against_born():
     # rms/E = 0.1, l = 0.5, k = 1: Born gamma = rms**2 sqrt(2 pi) l exp(-2 k**2 l**2) / (2 k**2) = 9.50e-4;
-    # REFERENCES.md re-computed gamma = 9.66(12)e-4 there (higher orders add ~2 %), and cells of
+    # re-computed gamma = 9.66(12)e-4 there (docs/validation.md; higher orders add ~2 %), and cells of
     # dx = l/4 lower gamma by (k dx)**2/3 = 0.5 %: the test allows 3 % and checks the re-computed value too.
     system = continuum(lambda a, b: mo.GaussianDisorder(0.05, 0.5, a, b), dx=0.125, points=2**16)
     born = mo.born_lyapunov(system, 0.5)
@@ -111,7 +111,7 @@ def test_speckle_below_the_effective_mobility_edge_against_born():
     # Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007):
     # gamma_Born = pi V_R**2 s_R (1 - k s_R) / (2 k**2) for k s_R < 1. Odd orders change gamma with
     # the sign of V_R; averaged over both signs (the same intensity field, V and -V) it meets Born
-    # within 3 % at k s_R = 0.5 (REFERENCES.md); V_R/E = 0.1.
+    # within 3 % at k s_R = 0.5 (docs/validation.md); V_R/E = 0.1.
     (plus, minus), system = speckle_pair(0.05, 0.5, 0.125, 2**16, 0.5, 640, seed=7)
     born = mo.born_lyapunov(system, 0.5)
     assert born == pytest.approx(math.pi * 0.05**2 * 0.5 * 0.5 / 2.0, rel=1e-14)
@@ -125,7 +125,7 @@ def test_speckle_below_the_effective_mobility_edge_against_born():
 def test_speckle_beyond_the_effective_mobility_edge():
     # Beyond k s_R = 1 the speckle spectrum C~(2k) vanishes: Born gamma = 0 and the true gamma (higher
     # orders) is orders of magnitude smaller than just below the edge (Sanchez-Palencia et al. 2007;
-    # REFERENCES.md: < 1e-2 of the value below). V_R/E = 0.05 keeps repulsive peaks far below E.
+    # docs/validation.md: < 1e-2 of the value below). V_R/E = 0.05 keeps repulsive peaks far below E.
     (below_plus, below_minus), below_system = speckle_pair(0.025, 0.5, 0.125, 2**17, 0.5, 6, seed=8)
     (above_plus, above_minus), above_system = speckle_pair(0.025, 1.5, 0.25, 2**19, 0.5, 8, seed=8)
     assert mo.born_lyapunov(above_system, 0.5) == 0.0

@@ -66,7 +66,7 @@ def test_backscattering_then_forward_scattering_in_white_noise():
     # time is about xi / v = 10. After a few scattering times the mean momentum density shows the
     # coherent backscattering peak at -k0, and by t = 160 the coherent forward-scattering peak at +k0 has
     # grown to the same height (Karpiuk et al., Phys. Rev. Lett. 109, 190601 (2012); Jendrzejewski et
-    # al., Phys. Rev. Lett. 109, 195302 (2012)); REFERENCES.md: the peaks lie within one k-bin of -+k0.
+    # al., Phys. Rev. Lett. 109, 195302 (2012)); docs/validation.md: the peaks lie within one k-bin of -+k0.
     # The step keeps the largest kinetic phase on the grid below 2 pi: a longer one folds grid states of
     # high k onto the packet's energy shell, and the white noise couples them, which spoils the CFS peak.
     grid = mo.Grid(1024, 409.6)

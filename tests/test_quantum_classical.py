@@ -57,7 +57,7 @@ def test_classical_particles_pass_only_above_the_barrier_while_the_quantum_packe
     # everything has left the box by the end, into the layers
     assert classical.absorbed_left + classical.absorbed_right == 1.0
     # The packet's T against the stationary T(k) averaged over its momentum distribution,
-    # |phi(k)|^2 = N(k0, (1/(2 width))^2) (REFERENCES.md: 1e-3 or better).
+    # |phi(k)|^2 = N(k0, (1/(2 width))^2) (docs/validation.md, pitfall 4: 1e-3 or better).
     k = packet.wavenumber + np.linspace(-6, 6, 241) / (2 * packet.width)
     weights = np.exp(-0.5 * ((k - packet.wavenumber) * 2 * packet.width) ** 2)
     stationary = mo.transmission_spectrum(system, k**2 / 2).samples[0]

@@ -32,7 +32,7 @@ def aligned_barrier_system(points=1024, length=64.0, hbar=1.0, mass=1.0):
 
 
 def test_rectangular_barrier_matches_griffiths_values():
-    # Griffiths (2005), problem 2.33, V0 = a = 1: the values tabulated in REFERENCES.md (10 digits).
+    # Griffiths (2005), problem 2.33, V0 = a = 1: the values tabulated in docs/validation.md (10 digits).
     energies = [0.25, 0.5, 1.0, 1.5, 3.0]
     published = [0.2368027308, 0.4199743416, 2.0 / 3.0, 0.8090454696, 0.9666964295]
     spectrum = mo.transmission_spectrum(aligned_barrier_system(), energies)

@@ -76,7 +76,7 @@ def test_localization_length_from_log_transmission_agrees_with_lyapunov():
 
 def test_log_transmission_statistics_of_a_long_sample():
     # L = 18 xi: var(ln T) approaches -2 <ln T> (single-parameter scaling; Anderson, Thouless,
-    # Abrahams & Fisher 1980; REFERENCES.md allows 15 %), ln T is close to Gaussian, and the
+    # Abrahams & Fisher 1980; 15 % as in docs/validation.md), ln T is close to Gaussian, and the
     # typical transmission exp<ln T> lies far below the mean <T>.
     spectrum = mo.transmission_spectrum(anderson_slab(1.0, 1600), [0.5], 2000, seed=13)
     ratio = spectrum.log_variance_ratio[0]

@@ -163,7 +163,7 @@ mod tests {
     #[test]
     fn anderson_lyapunov_matches_thouless_at_weak_disorder() {
         // gamma = W^2 / (24 (4 - E^2)) per site (Thouless, Ill-Condensed Matter,
-        // Les Houches 1978); re-computed xi(1.5) = 41.2 for W = 1 (REFERENCES.md).
+        // Les Houches 1978); re-computed xi(1.5) = 41.2 for W = 1 (docs/validation.md).
         let points = 100_000;
         let statics = vec![0.0; points];
         let terms = [Term {

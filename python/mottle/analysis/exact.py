@@ -41,7 +41,7 @@ def packet_average(function, wavenumber, width, spread_count=10.0, samples=4001)
     """``integral |phi(k)|**2 f(k) dk`` for the Gaussian packet of rms width ``width`` in x.
 
     ``|phi(k)|**2`` is the normal density of mean k0 and rms ``1/(2 width)``
-    (the Fourier transform of psi0 in DESIGN.md's convention). Simpson's rule
+    (the Fourier transform of psi0 ~ exp(-(x-x0)**2/(4 width**2) + i k0 x)). Simpson's rule
     over k0 +- ``spread_count`` rms widths; the tails beyond are below 1e-20.
     """
     spread = 0.5 / width

@@ -169,7 +169,7 @@ SPECKLE = "Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007), Born gam
 )
 def _barrier_formula() -> Outcome:
     # The book's formula evaluated by barrier_transmission, against the value tabulated in
-    # shared/REFERENCES.md from the same formula: guards the closed form the next case uses.
+    # docs/validation.md (ten digits, same formula): guards the closed form the next case uses.
     return Outcome(float(barrier_transmission(1.5, 1.0, 1.0)), 0.8090454696, 1e-9, relative=True)
 
 

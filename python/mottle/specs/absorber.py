@@ -8,7 +8,7 @@ inner edge of the layer and ``E_min = (hbar**2/2m) (2 pi / width)**2``. The
 profile diverges at the box end; on the grid the outermost point is
 evaluated half a spacing inside it. Reflection falls fast with energy:
 about 7e-3 at E = E_min, 4e-4 at 2 E_min and 3e-6 at 10 E_min (re-computed
-values for this profile, see REFERENCES). Widen the layer to lower E_min:
+values for this profile, see docs/validation.md). Widen the layer to lower E_min:
 ``E_min`` scales as ``1/width**2``.
 """
 

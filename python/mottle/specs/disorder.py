@@ -177,7 +177,7 @@ class BoxDisorder(Disorder):
 
     def power_spectrum(self, q, dx=None):
         # Per-point variance s**2 on spacing dx is white noise of strength s**2 dx
-        # (common practice; REFERENCES pitfall 3).
+        # (common practice; docs/validation.md, pitfall 3).
         dx = _need_dx("BoxDisorder power_spectrum", dx)
         return np.full_like(np.asarray(q, dtype=float), self.variance() * dx)
 

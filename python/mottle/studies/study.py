@@ -1,8 +1,9 @@
 """Study files: a TOML description of a sweep of ensemble runs, validated before anything runs.
 
-A study file is data. Its keys are the Python names of the specs (see
-DESIGN.md): ``[system]`` (grid, model, ``absorber``, ``[[system.potential]]``
-and ``[[system.disorder]]`` entries with a ``kind``), ``[packet]``, ``[run]``
+A study file is data. Its keys are the Python names of the specs (every key,
+with its type, default and an example: docs/study-files.md): ``[system]``
+(grid, model, ``absorber``, ``[[system.potential]]`` and
+``[[system.disorder]]`` entries with a ``kind``), ``[packet]``, ``[run]``
 and ``[sweep]``, plus an optional ``[study]`` table (``title``, ``notes``)
 that labels reports and does not change results. ``[sweep]`` maps dotted
 paths such as ``"system.disorder.0.stop"`` to lists of values or to ranges

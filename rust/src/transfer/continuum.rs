@@ -286,7 +286,7 @@ mod tests {
             mass: 1.0,
             dx,
         };
-        // Values in REFERENCES.md: 0.2368027308, 0.4199743416, 2/3, 0.8090454696, 0.9666964295.
+        // Values in docs/validation.md: 0.2368027308, 0.4199743416, 2/3, 0.8090454696, 0.9666964295.
         for energy in [0.25, 0.5, 1.0, 1.5, 3.0] {
             let t = log_transmission(medium, &potential, energy, &never())
                 .unwrap()

@@ -1,0 +1,38 @@
+"""The documentation stays in step with the package: every public name has its API entry,
+and the documents the repository's files point to are in the repository."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+from pathlib import Path
+
+import mottle
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def test_every_public_name_is_in_the_api_reference():
+    pages = "".join(path.read_text(encoding="utf-8") for path in (ROOT / "docs" / "api").glob("*.md"))
+    directives = set(re.findall(r"^\.\. auto\w+:: mottle\.(\w+)", pages, re.MULTILINE))
+    missing = sorted(set(mottle.__all__) - directives)
+    assert not missing, f"add these to a page in docs/api/: {missing}"
+
+
+def test_docs_named_in_the_repository_exist():
+    # Every docs/NAME.md mentioned in a tracked file, and every README marker docs/ includes.
+    tracked = subprocess.run(
+        ["git", "ls-files"], cwd=ROOT, capture_output=True, text=True, check=True
+    ).stdout.split()
+    named = set()
+    for name in tracked:
+        path = ROOT / name
+        if path.suffix in {".py", ".rs", ".md", ".toml", ".sh"} and path.is_file():
+            named |= set(re.findall(r"docs/[\w-]+\.md", path.read_text(encoding="utf-8")))
+    assert {"docs/validation.md", "docs/study-files.md"} <= named
+    assert [name for name in sorted(named) if not (ROOT / name).is_file()] == []
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    for page in ("examples", "conventions"):
+        text = (ROOT / "docs" / f"{page}.md").read_text(encoding="utf-8")
+        for marker in re.findall(r'"(<!-- [^"]+ -->)"', text):
+            assert readme.count(marker) == 1, marker
