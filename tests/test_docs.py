@@ -36,3 +36,18 @@ def test_docs_named_in_the_repository_exist():
         text = (ROOT / "docs" / f"{page}.md").read_text(encoding="utf-8")
         for marker in re.findall(r'"(<!-- [^"]+ -->)"', text):
             assert readme.count(marker) == 1, marker
+
+
+def test_every_test_docs_validation_names_exists():
+    # docs/validation.md names each check by file::test; a renamed or removed test must update it.
+    text = (ROOT / "docs" / "validation.md").read_text(encoding="utf-8")
+    named = re.findall(r"`((?:tests|rust/src)/[\w/]+\.(?:py|rs))((?:::\w+)*)`", text)
+    assert len(named) > 40
+    for path, names in named:
+        source = (ROOT / path).read_text(encoding="utf-8")
+        for name in names.split("::")[1:]:
+            if name != "tests":
+                assert re.search(rf"\bfn {name}\b|\bdef {name}\b", source), f"{path}::{name}"
+    # the "::name" shorthand after a full entry refers to the same file
+    for path, _first, more in re.findall(r"`(tests/\w+\.py)::(\w+)`, `::(\w+)`", text):
+        assert f"def {more}(" in (ROOT / path).read_text(encoding="utf-8"), more
