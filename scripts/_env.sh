@@ -111,7 +111,7 @@ _mottle_venv() {
     local clear=()
     [[ -e "$venv" ]] && clear=(--clear) && echo "mottle set-up: re-creating $venv (it has no working python or pip)"
     [[ ${#clear[@]} -gt 0 ]] || echo "mottle set-up: creating a virtual environment in $venv"
-    "$MOTTLE_PYTHON" -m venv "${clear[@]}" "$venv" ||
+    "$MOTTLE_PYTHON" -m venv ${clear[@]+"${clear[@]}"} "$venv" ||
         mottle_fail "$MOTTLE_PYTHON -m venv $venv failed (see above): apt install python3-venv on Debian/Ubuntu"
     MOTTLE_PYTHON="$venv/bin/python"
     MOTTLE_VENV=$venv
@@ -126,8 +126,8 @@ mottle_setup() {
     _mottle_check_rust
     _mottle_venv
     export PIP_DISABLE_PIP_VERSION_CHECK=1
-    echo "mottle set-up: pip install ${editable[*]} .[$extras] into $("$MOTTLE_PYTHON" -c 'import sys; print(sys.prefix)') (builds the Rust core: a few minutes the first time)"
-    "$MOTTLE_PYTHON" -m pip install --quiet "${editable[@]}" "$MOTTLE_ROOT[$extras]"
+    echo "mottle set-up: pip install ${editable[*]+${editable[*]} }.[$extras] into $("$MOTTLE_PYTHON" -c 'import sys; print(sys.prefix)') (builds the Rust core: a few minutes the first time)"
+    "$MOTTLE_PYTHON" -m pip install --quiet ${editable[@]+"${editable[@]}"} "$MOTTLE_ROOT[$extras]"
     MOTTLE_BIN=$("$MOTTLE_PYTHON" -c 'import os, sys; print(os.path.dirname(sys.executable))')
     export MOTTLE_PYTHON MOTTLE_BIN
 }

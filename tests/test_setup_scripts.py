@@ -155,3 +155,29 @@ def test_the_active_environment_is_used_instead_of_a_new_one(machine):
     fake(active, "python", "echo 3.9")
     line = one_line(setup(root, bin_dir, home, VIRTUAL_ENV=str(active.parent)))
     assert f"{active}/python is 3.9" in line
+
+
+def test_a_broken_venv_is_recreated_and_a_working_one_reused(machine):
+    # The .venv step alone, for real (venv and ensurepip only, nothing downloaded): a .venv left
+    # without pip (as a failed `python3 -m venv` on Debian leaves it) is re-created, then reused.
+    root, bin_dir, home = machine
+    grant_python(bin_dir)
+    subprocess.run([sys.executable, "-m", "venv", "--without-pip", str(root / ".venv")], check=True)
+    step = 'source scripts/_env.sh && _mottle_python && _mottle_venv && echo "using $MOTTLE_PYTHON"'
+
+    def venv_step():
+        environment = {"PATH": str(bin_dir), "HOME": str(home)}
+        return subprocess.run(
+            [BASH, "-c", step], cwd=root, env=environment, capture_output=True, text=True, timeout=300
+        )
+
+    first = venv_step()
+    assert first.returncode == 0, first.stderr
+    assert "re-creating" in first.stdout and f"using {root}/.venv/bin/python" in first.stdout
+    pip = subprocess.run(
+        [str(root / ".venv" / "bin" / "python"), "-m", "pip", "--version"], capture_output=True
+    )
+    assert pip.returncode == 0
+    again = venv_step()
+    assert again.returncode == 0, again.stderr
+    assert again.stdout.strip() == f"using {root}/.venv/bin/python"  # reused: no creation message
