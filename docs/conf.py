@@ -31,3 +31,26 @@ myst_enable_extensions = ["colon_fence"]
 
 html_theme = "furo"
 html_title = f"mottle {release}"
+
+
+def setup(app):
+    """The ``mottle-kinds FAMILY`` directive: an autodoc entry for every spec class registered in
+    that family (mottle.specs.kinds), so a new kind appears in the reference without editing it."""
+    from sphinx.util.docutils import SphinxDirective
+
+    from mottle.specs import kinds
+
+    class Kinds(SphinxDirective):
+        required_arguments = 1
+
+        def run(self):
+            # MyST around reStructuredText: the directive is used in the Markdown pages, and
+            # autodoc's output is reStructuredText.
+            lines = ["```{eval-rst}"]
+            for cls in kinds.kinds(self.arguments[0]).values():
+                public = getattr(mottle, cls.__name__, None) is cls
+                lines.append(f".. autoclass:: {'mottle' if public else cls.__module__}.{cls.__name__}")
+            return self.parse_text_to_nodes("\n".join([*lines, "```"]))
+
+    app.add_directive("mottle-kinds", Kinds)
+    return {"parallel_read_safe": True}
