@@ -3,18 +3,32 @@
 //! Conventions (the Python classes document them for users):
 //! - white noise of strength D: independent normals of variance D/dx per point;
 //! - box disorder of width W: independent uniforms on [-W/2, W/2];
-//! - Gaussian disorder: `C(x) = rms^2 exp(-x^2/(2 l^2))`, by spectral filtering of
-//!   white noise on a padded periodic line, rescaled to the exact variance;
+//! - Gaussian disorder: `C(x) = rms^2 exp(-x^2/(2 l^2))`, a stationary Gaussian
+//!   field on a periodic line longer than the region by ten correlation lengths
+//!   (where `C` is below `e^-50 rms^2`), scaled to the exact variance;
 //! - speckle: `V = s (I/<I> - 1)` with `I = |E|^2`, `E` a complex Gaussian field
 //!   with a flat spectrum on `|q| < 1/l`; `<I>` is the exact ensemble mean, so
-//!   `C(x) = s^2 sinc^2(x/l)` and `V >= -s` for `s > 0`.
+//!   `C(x) = s^2 sinc^2(x/l)` and `V >= -s` for `s > 0`. Its correlation decays
+//!   only as `(l/x)^2`, so its periodic line is twice the region plus sixteen
+//!   correlation lengths: no two points of the region are correlated through
+//!   the wrap by more than `(l / (L + 16 l))^2 s^2`.
+//!
+//! The correlated fields are drawn in Fourier space: the discrete Fourier
+//! transform of white noise is white noise, so drawing its amplitudes directly
+//! (Hermitian for the real Gaussian field, only the open pupil for speckle) and
+//! applying one inverse FFT gives the same field in distribution as filtering
+//! white noise, with one transform instead of two and, for speckle, random
+//! numbers for the open modes only.
 //!
 //! Each term draws from its own counter-based stream (purpose = its position
 //! in the list), so realization `index` never depends on how work is spread.
+//! A `Plan` (checks, filters, FFT plans) is made once per run and shared by
+//! the threads; each thread's `Realizer` owns its buffers.
 
 use std::sync::Arc;
 
 use num_complex::Complex64;
+use realfft::{ComplexToReal, RealFftPlanner};
 use rustfft::{Fft, FftPlanner};
 
 use crate::error::{invalid, CoreError};
@@ -61,54 +75,86 @@ pub struct Line {
     pub start: f64,
 }
 
-/// A filtered term's plans and filter, built once per run.
-struct Filtered {
-    length: usize,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
-    /// Multiplies the transformed noise.
-    filter: Vec<f64>,
-    /// Speckle: `<I>`, the ensemble-mean intensity.
-    mean_intensity: f64,
+/// How a term's values are made.
+enum Generator {
+    WhiteNoise {
+        sigma: f64,
+    },
+    Box {
+        width: f64,
+    },
+    Cauchy {
+        width: f64,
+    },
+    /// `V_j = sum_k a_k e^{2 pi i j k / M}` over the Hermitian spectrum, `a_k =
+    /// amplitude[k] xi_k` for `k = 0 ..= M/2`: `xi` complex normal of unit mean
+    /// square (real at `k = 0` and `M/2`).
+    Gaussian {
+        inverse: Arc<dyn ComplexToReal<f64>>,
+        amplitude: Vec<f64>,
+    },
+    /// `E_j = sum_k a_k e^{2 pi i j k / M}` over the open modes `0 .. open`
+    /// and `length - open + 1 .. length`, `a_k` complex normal of unit mean square.
+    Speckle {
+        inverse: Arc<dyn Fft<f64>>,
+        open: usize,
+        strength: f64,
+    },
 }
 
-impl Filtered {
-    fn new(planner: &mut FftPlanner<f64>, filter: Vec<f64>, mean_intensity: f64) -> Self {
-        let length = filter.len();
-        Filtered {
-            length,
-            forward: planner.plan_fft_forward(length),
-            inverse: planner.plan_fft_inverse(length),
-            filter,
-            mean_intensity,
+impl Generator {
+    /// Buffer sizes: (complex spectrum, real values, complex scratch).
+    fn buffers(&self) -> (usize, usize, usize) {
+        match self {
+            Generator::WhiteNoise { .. } | Generator::Box { .. } | Generator::Cauchy { .. } => {
+                (0, 0, 0)
+            }
+            Generator::Gaussian { inverse, .. } => (
+                inverse.complex_len(),
+                inverse.len() + 2,
+                inverse.get_scratch_len(),
+            ),
+            Generator::Speckle { inverse, open, .. } => (
+                inverse.len(),
+                2 * (2 * open - 1),
+                inverse.get_inplace_scratch_len(),
+            ),
         }
     }
 }
 
 struct Prepared {
-    term: Term,
     first: usize,
     end: usize,
-    filtered: Option<Filtered>,
+    generator: Generator,
 }
 
-/// Generates realizations of a list of terms; one per thread (it owns buffers).
-pub struct Realizer {
+/// What a run needs to draw realizations: checked terms, their filters and
+/// FFT plans. Made once, shared by every thread (see `Realizer`).
+pub struct Plan {
     line: Line,
     terms: Vec<Prepared>,
-    buffer: Vec<Complex64>,
+}
+
+/// Draws realizations of a plan; one per thread (it owns the buffers).
+pub struct Realizer {
+    plan: Arc<Plan>,
+    spectrum: Vec<Complex64>,
+    values: Vec<f64>,
     scratch: Vec<Complex64>,
 }
 
+/// The least even size of the form 2^a 3^b 5^c (a >= 1) at least `minimum`:
+/// fast for rustfft and for the half-length transform of a real FFT.
 fn smooth_size(minimum: usize) -> usize {
-    // The next size of the form 2^a 3^b 5^c: fast for rustfft.
-    let mut best = minimum.next_power_of_two();
+    let half = minimum.div_ceil(2).max(1);
+    let mut best = half.next_power_of_two();
     let mut p3 = 1;
     while p3 < best {
         let mut p35 = p3;
         while p35 < best {
             let mut size = p35;
-            while size < minimum {
+            while size < half {
                 size *= 2;
             }
             best = best.min(size);
@@ -116,28 +162,31 @@ fn smooth_size(minimum: usize) -> usize {
         }
         p3 *= 3;
     }
-    best
+    2 * best
 }
 
-impl Realizer {
+impl Plan {
     pub fn new(line: Line, terms: &[Term]) -> Result<Self, CoreError> {
-        let mut planner = FftPlanner::<f64>::new();
+        let mut complex = FftPlanner::<f64>::new();
+        let mut real = RealFftPlanner::<f64>::new();
         let mut prepared = Vec::with_capacity(terms.len());
-        let mut longest = 0;
         for &term in terms {
             let (first, end) = region(line, term)?;
-            let filtered = match term.kind {
+            let points = end - first;
+            let generator = match term.kind {
                 Kind::WhiteNoise { strength } => {
                     positive("white-noise strength", strength)?;
-                    None
+                    Generator::WhiteNoise {
+                        sigma: (strength / line.dx).sqrt(),
+                    }
                 }
                 Kind::Box { width } => {
                     positive("box width", width)?;
-                    None
+                    Generator::Box { width }
                 }
                 Kind::Cauchy { width } => {
                     positive("cauchy width", width)?;
-                    None
+                    Generator::Cauchy { width }
                 }
                 Kind::Gaussian {
                     rms,
@@ -145,19 +194,31 @@ impl Realizer {
                 } => {
                     positive("gaussian rms", rms)?;
                     resolved(line, correlation_length)?;
-                    let length = padded(end - first, correlation_length, line.dx);
-                    let q = wavenumbers(length, line.dx);
-                    let raw: Vec<f64> = q
-                        .iter()
-                        .map(|&q| (-(q * correlation_length).powi(2) / 4.0).exp())
+                    let margin = (10.0 * correlation_length / line.dx).ceil() as usize;
+                    let length = smooth_size(points + margin);
+                    let step = 2.0 * std::f64::consts::PI / (length as f64 * line.dx);
+                    // The amplitude spectrum: the square root of the power spectrum.
+                    let mut amplitude: Vec<f64> = (0..=length / 2)
+                        .map(|k| (-(k as f64 * step * correlation_length).powi(2) / 4.0).exp())
                         .collect();
-                    // Normalize so that the variance is exactly rms^2:
-                    // var = (1/M) sum |H_q|^2 for unit-variance white noise.
-                    let power: f64 = raw.iter().map(|h| h * h).sum::<f64>() / length as f64;
+                    // var V_j = sum over all M modes of amplitude^2 (modes k and M - k alike).
+                    let power = amplitude
+                        .iter()
+                        .enumerate()
+                        .map(|(k, a)| {
+                            if k == 0 || k == length / 2 {
+                                a * a
+                            } else {
+                                2.0 * a * a
+                            }
+                        })
+                        .sum::<f64>();
                     let scale = rms / power.sqrt();
-                    let filter = raw.iter().map(|h| h * scale / length as f64).collect();
-                    longest = longest.max(length);
-                    Some(Filtered::new(&mut planner, filter, 0.0))
+                    amplitude.iter_mut().for_each(|a| *a *= scale);
+                    Generator::Gaussian {
+                        inverse: real.plan_fft_inverse(length),
+                        amplitude,
+                    }
                 }
                 Kind::Speckle {
                     strength,
@@ -169,51 +230,61 @@ impl Realizer {
                         ));
                     }
                     resolved(line, correlation_length)?;
-                    let length = padded(end - first, correlation_length, line.dx);
-                    let q = wavenumbers(length, line.dx);
-                    let pupil: Vec<f64> = q
-                        .iter()
-                        .map(|&q| {
-                            if q.abs() * correlation_length < 1.0 {
-                                1.0
-                            } else {
-                                0.0
-                            }
-                        })
-                        .collect();
-                    let open = pupil.iter().sum::<f64>();
-                    if open < 1.0 {
-                        return invalid("speckle pupil holds no wavenumber: correlation_length too long for the region");
+                    let margin = (16.0 * correlation_length / line.dx).ceil() as usize;
+                    let length = smooth_size(2 * points + margin);
+                    let step = 2.0 * std::f64::consts::PI / (length as f64 * line.dx);
+                    // Modes |k| < open lie in the pupil |q| l < 1 (k = 0 always: l >= 2 dx
+                    // keeps the pupil inside the Brillouin zone).
+                    let open = (0..length / 2)
+                        .take_while(|&k| k as f64 * step * correlation_length < 1.0)
+                        .count();
+                    Generator::Speckle {
+                        inverse: complex.plan_fft_inverse(length),
+                        open,
+                        strength,
                     }
-                    // E = IFFT(P W)/M with unit complex noise: <|E|^2> = open / M^2 * M.
-                    let filter = pupil.iter().map(|p| p / length as f64).collect();
-                    longest = longest.max(length);
-                    Some(Filtered::new(&mut planner, filter, open / length as f64))
                 }
             };
             prepared.push(Prepared {
-                term,
                 first,
                 end,
-                filtered,
+                generator,
             });
         }
-        let scratch_len = prepared
-            .iter()
-            .filter_map(|p| p.filtered.as_ref())
-            .map(|f| {
-                f.forward
-                    .get_inplace_scratch_len()
-                    .max(f.inverse.get_inplace_scratch_len())
-            })
-            .max()
-            .unwrap_or(0);
-        Ok(Realizer {
+        Ok(Plan {
             line,
             terms: prepared,
-            buffer: vec![Complex64::new(0.0, 0.0); longest],
-            scratch: vec![Complex64::new(0.0, 0.0); scratch_len],
         })
+    }
+
+    pub fn line(&self) -> Line {
+        self.line
+    }
+}
+
+impl Realizer {
+    /// A plan for `terms` on `line` and buffers for it.
+    pub fn new(line: Line, terms: &[Term]) -> Result<Self, CoreError> {
+        Ok(Self::with_plan(Arc::new(Plan::new(line, terms)?)))
+    }
+
+    /// Buffers for a plan made once and shared (cheap).
+    pub fn with_plan(plan: Arc<Plan>) -> Self {
+        let (mut spectrum, mut values, mut scratch) = (0, 0, 0);
+        for term in &plan.terms {
+            let (c, v, s) = term.generator.buffers();
+            (spectrum, values, scratch) = (spectrum.max(c), values.max(v), scratch.max(s));
+        }
+        Realizer {
+            plan,
+            spectrum: vec![Complex64::new(0.0, 0.0); spectrum],
+            values: vec![0.0; values],
+            scratch: vec![Complex64::new(0.0, 0.0); scratch],
+        }
+    }
+
+    pub fn plan(&self) -> &Arc<Plan> {
+        &self.plan
     }
 
     /// Add realization `index` of `seed` to `potential` (the grid's size).
@@ -223,72 +294,83 @@ impl Realizer {
         index: u64,
         potential: &mut [f64],
     ) -> Result<(), CoreError> {
-        if potential.len() != self.line.points {
+        let line = self.plan.line;
+        if potential.len() != line.points {
             return invalid(format!(
                 "potential has {} points; the grid has {}",
                 potential.len(),
-                self.line.points
+                line.points
             ));
         }
-        for (purpose, prepared) in self.terms.iter().enumerate() {
+        for (purpose, prepared) in self.plan.terms.iter().enumerate() {
             let mut stream = Stream::new(seed, purpose as u64, index);
             let values = &mut potential[prepared.first..prepared.end];
-            match (prepared.term.kind, &prepared.filtered) {
-                (Kind::WhiteNoise { strength }, _) => {
-                    let sigma = (strength / self.line.dx).sqrt();
-                    values
-                        .iter_mut()
-                        .for_each(|v| *v += sigma * stream.normal());
+            match &prepared.generator {
+                &Generator::WhiteNoise { sigma } => {
+                    let mut normals = [0.0; 256];
+                    for chunk in values.chunks_mut(normals.len()) {
+                        let normals = &mut normals[..chunk.len()];
+                        stream.normals(normals);
+                        for (v, z) in chunk.iter_mut().zip(normals.iter()) {
+                            *v += sigma * z;
+                        }
+                    }
                 }
-                (Kind::Box { width }, _) => {
-                    values
-                        .iter_mut()
-                        .for_each(|v| *v += width * (stream.uniform() - 0.5));
-                }
-                (Kind::Cauchy { width }, _) => cauchy::add(&mut stream, width, values),
-                (Kind::Gaussian { .. }, Some(filtered)) => {
-                    let buffer = &mut self.buffer[..filtered.length];
-                    buffer
-                        .iter_mut()
-                        .for_each(|z| *z = Complex64::new(stream.normal(), 0.0));
-                    filter(filtered, buffer, &mut self.scratch);
-                    values
-                        .iter_mut()
-                        .zip(buffer.iter())
-                        .for_each(|(v, z)| *v += z.re);
-                }
-                (Kind::Speckle { strength, .. }, Some(filtered)) => {
-                    let buffer = &mut self.buffer[..filtered.length];
-                    // Unit complex noise: real and imaginary parts of variance 1/2.
+                &Generator::Box { width } => stream.add_uniforms(values, width, -0.5 * width),
+                &Generator::Cauchy { width } => cauchy::add(&mut stream, width, values),
+                Generator::Gaussian { inverse, amplitude } => {
+                    let length = inverse.len();
+                    let spectrum = &mut self.spectrum[..inverse.complex_len()];
+                    let normals = &mut self.values[..length + 2];
+                    stream.normals(normals);
                     let half = std::f64::consts::FRAC_1_SQRT_2;
-                    buffer.iter_mut().for_each(|z| {
-                        *z = Complex64::new(half * stream.normal(), half * stream.normal())
-                    });
-                    filter(filtered, buffer, &mut self.scratch);
-                    let mean = filtered.mean_intensity;
-                    values
+                    for (k, ((z, pair), &a)) in spectrum
                         .iter_mut()
-                        .zip(buffer.iter())
-                        .for_each(|(v, z)| *v += strength * (z.norm_sqr() / mean - 1.0));
+                        .zip(normals.chunks_exact(2))
+                        .zip(amplitude)
+                        .enumerate()
+                    {
+                        *z = if k == 0 || 2 * k == length {
+                            Complex64::new(a * pair[0], 0.0)
+                        } else {
+                            Complex64::new(half * a * pair[0], half * a * pair[1])
+                        };
+                    }
+                    let field = &mut self.values[..length];
+                    inverse
+                        .process_with_scratch(spectrum, field, &mut self.scratch)
+                        .map_err(|error| CoreError::Internal(format!("gaussian FFT: {error}")))?;
+                    for (v, &f) in values.iter_mut().zip(field.iter()) {
+                        *v += f;
+                    }
                 }
-                _ => {
-                    return Err(CoreError::Internal(
-                        "filtered term without its filter".into(),
-                    ))
+                &Generator::Speckle {
+                    ref inverse,
+                    open,
+                    strength,
+                } => {
+                    let length = inverse.len();
+                    let modes = 2 * open - 1;
+                    let normals = &mut self.values[..2 * modes];
+                    stream.normals(normals);
+                    let spectrum = &mut self.spectrum[..length];
+                    spectrum.fill(Complex64::new(0.0, 0.0));
+                    let half = std::f64::consts::FRAC_1_SQRT_2;
+                    // Modes 0, 1, .., open - 1, then -1, -2, .., -(open - 1).
+                    let slots = (0..open).chain((1..open).map(|k| length - k));
+                    for (slot, pair) in slots.zip(normals.chunks_exact(2)) {
+                        spectrum[slot] = Complex64::new(half * pair[0], half * pair[1]);
+                    }
+                    inverse.process_with_scratch(spectrum, &mut self.scratch);
+                    let scale = strength / modes as f64;
+                    for (v, z) in values.iter_mut().zip(spectrum.iter()) {
+                        *v += scale * z.norm_sqr() - strength;
+                    }
                 }
             }
         }
         Ok(())
     }
-}
-
-fn filter(filtered: &Filtered, buffer: &mut [Complex64], scratch: &mut [Complex64]) {
-    filtered.forward.process_with_scratch(buffer, scratch);
-    buffer
-        .iter_mut()
-        .zip(&filtered.filter)
-        .for_each(|(z, &h)| *z *= h);
-    filtered.inverse.process_with_scratch(buffer, scratch);
 }
 
 fn positive(name: &str, value: f64) -> Result<(), CoreError> {
@@ -309,16 +391,6 @@ fn resolved(line: Line, correlation_length: f64) -> Result<(), CoreError> {
             2.0 * line.dx
         ))
     }
-}
-
-/// A periodic line long enough that wrap-around correlations are negligible:
-/// twice the region plus sixteen correlation lengths.
-fn padded(points: usize, correlation_length: f64, dx: f64) -> usize {
-    smooth_size(2 * points + (16.0 * correlation_length / dx).ceil() as usize)
-}
-
-fn wavenumbers(length: usize, dx: f64) -> Vec<f64> {
-    crate::observables::wavenumbers(length, dx)
 }
 
 /// Grid points `first .. end` with `start <= x < stop`.
@@ -430,5 +502,7 @@ mod tests {
         assert_eq!(smooth_size(1000), 1000);
         assert_eq!(smooth_size(1001), 1024);
         assert_eq!(smooth_size(4097), 4320);
+        assert_eq!(smooth_size(243), 250);
+        assert_eq!(smooth_size(1), 2);
     }
 }

@@ -7,11 +7,12 @@
 //! or workers. Memory per chunk in flight: five `snapshots x points` arrays.
 
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 
 use num_complex::{Complex, Complex64};
 use rayon::prelude::*;
 
-use crate::disorder::{Line, Realizer, Term};
+use crate::disorder::{Line, Plan, Realizer, Term};
 use crate::error::{invalid, CoreError};
 use crate::observables::{observe, wavenumbers, Detector};
 use crate::packets::PacketSource;
@@ -127,15 +128,15 @@ pub fn run_chunks<T: Real>(
         }
     }
     let grid = line(setup.points, setup.dx, setup.start);
-    // Fail on bad disorder before any thread starts.
-    Realizer::new(grid, &spec.disorder)?;
+    // Fail on bad disorder before any thread starts; one plan for every chunk.
+    let plan = Arc::new(Plan::new(grid, &spec.disorder)?);
     let offsets = Offsets::<T>::new(setup, &spec.pauses)?;
     let starts: Vec<usize> = (start..start + count).step_by(CHUNK).collect();
     starts
         .into_par_iter()
         .map(|first| {
             let size = CHUNK.min(start + count - first);
-            run_chunk(shared, &offsets, spec, grid, first, size, cancel)
+            run_chunk(shared, &offsets, spec, &plan, first, size, cancel)
         })
         .collect()
 }
@@ -144,11 +145,12 @@ fn run_chunk<T: Real>(
     shared: &Shared<T>,
     offsets: &Offsets<T>,
     spec: &Spec,
-    grid: Line,
+    plan: &Arc<Plan>,
     first: usize,
     count: usize,
     cancel: &AtomicBool,
 ) -> Result<Chunk, CoreError> {
+    let grid = plan.line();
     let n = grid.points;
     let snapshots = spec.pauses.len();
     let profile = snapshots * n;
@@ -162,7 +164,7 @@ fn run_chunk<T: Real>(
         momentum: vec![0.0; profile],
         ..Chunk::default()
     };
-    let mut realizer = Realizer::new(grid, &spec.disorder)?;
+    let mut realizer = Realizer::with_plan(plan.clone());
     let mut stepper = Stepper::new(shared);
     let mut potential = vec![0.0; n];
     let mut initial = vec![Complex64::new(0.0, 0.0); n];

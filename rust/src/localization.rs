@@ -8,10 +8,11 @@
 
 use std::ops::Range;
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 
 use rayon::prelude::*;
 
-use crate::disorder::{Line, Realizer, Term};
+use crate::disorder::{Line, Plan, Realizer, Term};
 use crate::error::{invalid, CoreError};
 use crate::transfer::{log_growth, log_transmission, Medium};
 
@@ -25,7 +26,8 @@ pub struct Sample<'a> {
 }
 
 impl Sample<'_> {
-    fn validate(&self, energies: &[f64]) -> Result<(), CoreError> {
+    /// Check the inputs and make the disorder's plan, before any thread starts.
+    fn validate(&self, energies: &[f64]) -> Result<Arc<Plan>, CoreError> {
         if self.static_potential.len() != self.line.points {
             return invalid(format!(
                 "static potential has {} values; the grid has {}",
@@ -36,15 +38,14 @@ impl Sample<'_> {
         if let Some(bad) = energies.iter().find(|e| !e.is_finite()) {
             return invalid(format!("energies must be finite, got {bad}"));
         }
-        // Fail on bad disorder before any thread starts.
-        Realizer::new(self.line, self.disorder)?;
-        Ok(())
+        Ok(Arc::new(Plan::new(self.line, self.disorder)?))
     }
 
     /// Run `work(potential, index)` for realizations `first .. first + count`
     /// in parallel; results in index order.
     fn map_realizations<R, F>(
         &self,
+        plan: &Arc<Plan>,
         first: usize,
         count: usize,
         cancel: &AtomicBool,
@@ -57,12 +58,11 @@ impl Sample<'_> {
         (first..first + count)
             .into_par_iter()
             .map_init(
-                || (Realizer::new(self.line, self.disorder), vec![0.0; 0]),
+                || (Realizer::with_plan(plan.clone()), vec![0.0; 0]),
                 |(realizer, potential), index| {
                     if cancel.load(Ordering::Relaxed) {
                         return Err(CoreError::Interrupted);
                     }
-                    let realizer = realizer.as_mut().map_err(|error| error.clone())?;
                     potential.clear();
                     potential.extend_from_slice(self.static_potential);
                     realizer.add_to(self.seed, index as u64, potential)?;
@@ -86,14 +86,14 @@ pub fn log_transmissions(
     cancel: &AtomicBool,
 ) -> Result<Vec<f64>, CoreError> {
     medium.validate()?;
-    sample.validate(energies)?;
+    let plan = sample.validate(energies)?;
     if region.len() < 2 || region.end > sample.line.points {
         return invalid(format!(
             "region {region:?} must hold at least two of the grid's {} points (one per lead)",
             sample.line.points
         ));
     }
-    let rows = sample.map_realizations(first, count, cancel, |potential, _| {
+    let rows = sample.map_realizations(&plan, first, count, cancel, |potential, _| {
         let cells = &potential[region.clone()];
         energies
             .par_iter()
@@ -116,7 +116,7 @@ pub fn lyapunov_exponents(
     cancel: &AtomicBool,
 ) -> Result<Vec<f64>, CoreError> {
     medium.validate()?;
-    sample.validate(energies)?;
+    let plan = sample.validate(energies)?;
     if region.start >= region.end || region.end > sample.line.points {
         return invalid(format!(
             "region {region:?} must be a non-empty range of the grid's {} points",
@@ -124,7 +124,7 @@ pub fn lyapunov_exponents(
         ));
     }
     let length = region.len() as f64 * medium.dx();
-    let rows = sample.map_realizations(first, count, cancel, |potential, _| {
+    let rows = sample.map_realizations(&plan, first, count, cancel, |potential, _| {
         let cells = &potential[region.clone()];
         energies
             .par_iter()
