@@ -2,7 +2,8 @@
 //!
 //! Conventions (the Python classes document them for users):
 //! - white noise of strength D: independent normals of variance D/dx per point;
-//! - box disorder of width W: independent uniforms on [-W/2, W/2];
+//! - box disorder of width W: independent uniforms on (-W/2, W/2), 32 random
+//!   bits each (a resolution of W/2^32);
 //! - Gaussian disorder: `C(x) = rms^2 exp(-x^2/(2 l^2))`, a stationary Gaussian
 //!   field on a periodic line longer than the region by ten correlation lengths
 //!   (where `C` is below `e^-50 rms^2`), scaled to the exact variance;
@@ -316,7 +317,7 @@ impl Realizer {
                         }
                     }
                 }
-                &Generator::Box { width } => stream.add_uniforms(values, width, -0.5 * width),
+                &Generator::Box { width } => stream.add_centered_uniforms(values, width),
                 &Generator::Cauchy { width } => cauchy::add(&mut stream, width, values),
                 Generator::Gaussian { inverse, amplitude } => {
                     let length = inverse.len();

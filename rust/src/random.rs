@@ -9,8 +9,9 @@
 //! by the vectorized rounds below, elsewhere by `rand_chacha`, which yields the
 //! same words (a test checks it).
 //!
-//! Normals come from the ziggurat method, uniforms from the 52 upper bits of a
-//! word; both are exact up to the resolution of those bits.
+//! Normals come from the ziggurat method, single uniforms from the 52 upper
+//! bits of a word, box disorder from 32 bits a value; each is exact up to the
+//! resolution of its bits.
 
 use std::sync::OnceLock;
 
@@ -128,20 +129,31 @@ impl Stream {
         }
     }
 
-    /// `out[j] += scale * u_j + offset`, as `uniforms`.
-    pub fn add_uniforms(&mut self, out: &mut [f64], scale: f64, offset: f64) {
+    /// `out[j] += width (u_j - 1/2)` with `u_j = (k_j + 1/2) 2^-32` uniform over
+    /// the 2^32 values of a 32-bit `k_j`: two values per word (low half first),
+    /// symmetric about zero and strictly inside `(-width/2, width/2)`.
+    pub fn add_centered_uniforms(&mut self, out: &mut [f64], width: f64) {
+        let scale = width * (1.0 / 4_294_967_296.0);
+        // (k - 2^31) + 1/2, exact: flipping the top bit of k is subtracting 2^31.
+        let centered = |half: u64| ((half as u32 ^ 0x8000_0000) as i32) as f64 + 0.5;
+        let mut pairs = out.chunks_exact_mut(2);
         let mut done = 0;
-        while done < out.len() {
+        let total = pairs.len();
+        while done < total {
             if self.position == BATCH {
                 self.refill();
             }
-            let take = (BATCH - self.position).min(out.len() - done);
+            let take = (BATCH - self.position).min(total - done);
             let words = &self.words[self.position..self.position + take];
-            for (v, &bits) in out[done..done + take].iter_mut().zip(words) {
-                *v += scale * unit(bits) + offset;
+            for (pair, &bits) in pairs.by_ref().take(take).zip(words) {
+                pair[0] += scale * centered(bits);
+                pair[1] += scale * centered(bits >> 32);
             }
             self.position += take;
             done += take;
+        }
+        if let [last] = pairs.into_remainder() {
+            *last += scale * centered(self.next_u64());
         }
     }
 
@@ -512,6 +524,18 @@ mod tests {
         for &v in &values[..70] {
             assert_eq!(v, 2.0 * single.uniform() - 1.0);
         }
+        // Two centred values a word, low half first; an odd count takes the low half of one more.
+        let mut centred = vec![0.0; 5];
+        bulk.add_centered_uniforms(&mut centred, 2.0);
+        for pair in centred.chunks(2) {
+            let bits = single.next_u64();
+            let value = |half: u64| ((half & 0xffff_ffff) as f64 + 0.5) / 2f64.powi(31) - 1.0;
+            assert_eq!(pair[0], value(bits));
+            if pair.len() == 2 {
+                assert_eq!(pair[1], value(bits >> 32));
+            }
+        }
+        assert!(centred.iter().all(|v| v.abs() < 1.0));
     }
 
     #[test]
