@@ -131,6 +131,9 @@ def test_ratios():
     for name in MODELS:
         core = TIMINGS[f"disorder {name}: core lyapunov per site"] - clean
         numpy = TIMINGS[f"disorder {name}: numpy per site"]
-        lines.append(f"  {name:12} core {core * 1e9:7.2f}   numpy {numpy * 1e9:7.2f}   core is {numpy / core:5.1f}x faster")
+        ratio = numpy / core
+        lines.append(
+            f"  {name:12} core {core * 1e9:7.2f}   numpy {numpy * 1e9:7.2f}   core is {ratio:5.1f}x faster"
+        )
         figure(f"disorder {name}: numpy / core", numpy / core, "> 1")
     print("\n".join(lines))

@@ -56,7 +56,7 @@ def test_a_nested_request_names_its_field():
     run = _requests.run(1, [1], None, None, "double")
     psi = np.ones(64, dtype=complex) / 8.0
     with pytest.raises(mo.InvalidTypeError, match='model "lattice" has no field "hoping"'):
-        _core.propagate_one(setup, run, system.kinetic_table(), system.absorption(), BASE, psi)
+        _core.propagate_one(setup, run, system.absorption(), BASE, psi)
 
 
 def test_a_request_that_is_not_a_dict_says_what_it_needs():

@@ -196,7 +196,6 @@ class _Particles(TypedDict):
 def propagate_one(
     setup: _Setup,
     run: _Run,
-    kinetic: npt.NDArray[np.float64],
     absorption: npt.NDArray[np.float64],
     potential: npt.NDArray[np.float64],
     psi: npt.NDArray[np.complex128],
@@ -212,7 +211,6 @@ def draw_packet(packets: _Packets, seed: int, index: int) -> tuple[float, float,
 def ensemble_chunks(
     setup: _Setup,
     run: _EnsembleRun,
-    kinetic: npt.NDArray[np.float64],
     absorption: npt.NDArray[np.float64],
     static_potential: npt.NDArray[np.float64],
     disorder: list[_Term],

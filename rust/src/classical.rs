@@ -11,54 +11,7 @@
 //! quarter of a cell per sub-step. A particle that enters an absorbing layer
 //! is absorbed there and stops.
 
-/// Kinetic energy of the classical particle.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Kinetic {
-    /// `T = p^2 / (2 mass)`.
-    Continuum { mass: f64 },
-    /// `T = -2 J cos(p a / hbar)`.
-    Lattice {
-        hopping: f64,
-        spacing: f64,
-        hbar: f64,
-    },
-}
-
-impl Kinetic {
-    fn velocity(&self, momentum: f64) -> f64 {
-        match *self {
-            Kinetic::Continuum { mass } => momentum / mass,
-            Kinetic::Lattice {
-                hopping,
-                spacing,
-                hbar,
-            } => 2.0 * hopping * spacing / hbar * (momentum * spacing / hbar).sin(),
-        }
-    }
-
-    fn energy(&self, momentum: f64) -> f64 {
-        match *self {
-            Kinetic::Continuum { mass } => momentum * momentum / (2.0 * mass),
-            Kinetic::Lattice {
-                hopping,
-                spacing,
-                hbar,
-            } => -2.0 * hopping * (momentum * spacing / hbar).cos(),
-        }
-    }
-
-    /// The largest speed reachable with total energy `energy` over a potential of minimum `floor`.
-    fn top_speed(&self, energy: f64, floor: f64) -> f64 {
-        match *self {
-            Kinetic::Continuum { mass } => (2.0 * (energy - floor).max(0.0) / mass).sqrt(),
-            Kinetic::Lattice {
-                hopping,
-                spacing,
-                hbar,
-            } => 2.0 * hopping * spacing / hbar,
-        }
-    }
-}
+use crate::dispersion::Dispersion;
 
 /// Where a classical particle is.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -76,7 +29,8 @@ pub struct Landscape<'a> {
     pub dx: f64,
     pub left_layer_end: usize,
     pub right_layer_start: usize,
-    pub kinetic: Kinetic,
+    /// The kinetic energy (with the grid spacing `dx` for a lattice).
+    pub dispersion: Dispersion,
 }
 
 impl Landscape<'_> {
@@ -123,20 +77,23 @@ impl Landscape<'_> {
     /// Sub-steps per step of length `step` for a particle starting at `particle`.
     pub fn substeps(&self, particle: &Particle, step: f64) -> usize {
         let floor = self.potential.iter().copied().fold(f64::INFINITY, f64::min);
-        let energy = self.kinetic.energy(particle.momentum) + self.value(particle.position);
+        let energy =
+            self.dispersion.energy(particle.momentum, self.dx) + self.value(particle.position);
         let speed = self
-            .kinetic
-            .top_speed(energy, floor)
-            .max(self.kinetic.velocity(particle.momentum).abs());
+            .dispersion
+            .top_speed(energy - floor, self.dx)
+            .max(self.dispersion.velocity(particle.momentum, self.dx).abs());
         ((speed * step / (0.25 * self.dx)).ceil() as usize).clamp(1, 1 << 20)
     }
 
     /// Evolve `particle` for `duration`: exactly in the continuum, by `substeps`
     /// leapfrog sub-steps on the lattice.
     pub fn evolve(&self, particle: &mut Particle, duration: f64, substeps: usize) {
-        match self.kinetic {
-            Kinetic::Continuum { mass } => self.exact(particle, duration, mass),
-            Kinetic::Lattice { .. } => self.advance(particle, duration / substeps as f64, substeps),
+        match self.dispersion {
+            Dispersion::Continuum { mass, .. } => self.exact(particle, duration, mass),
+            Dispersion::Lattice { .. } => {
+                self.advance(particle, duration / substeps as f64, substeps)
+            }
         }
     }
 
@@ -216,8 +173,9 @@ impl Landscape<'_> {
                 return;
             }
             particle.momentum += 0.5 * dt * self.force(particle.position);
-            particle.position =
-                self.wrap(particle.position + dt * self.kinetic.velocity(particle.momentum));
+            particle.position = self.wrap(
+                particle.position + dt * self.dispersion.velocity(particle.momentum, self.dx),
+            );
             particle.momentum += 0.5 * dt * self.force(particle.position);
             particle.absorbed = self.layer(particle.position);
         }
@@ -225,7 +183,7 @@ impl Landscape<'_> {
 
     /// Total energy of a particle.
     pub fn energy(&self, particle: &Particle) -> f64 {
-        self.kinetic.energy(particle.momentum) + self.value(particle.position)
+        self.dispersion.energy(particle.momentum, self.dx) + self.value(particle.position)
     }
 }
 
@@ -268,7 +226,10 @@ mod tests {
             dx,
             left_layer_end: 0,
             right_layer_start: potential.len(),
-            kinetic: Kinetic::Continuum { mass: 1.0 },
+            dispersion: Dispersion::Continuum {
+                hbar: 1.0,
+                mass: 1.0,
+            },
         }
     }
 
@@ -352,7 +313,10 @@ mod tests {
             dx,
             left_layer_end: 0,
             right_layer_start: points,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
+            dispersion: Dispersion::Continuum {
+                hbar: 1.0,
+                mass: 1.0,
+            },
         };
         for (momentum, passes) in [(1.3, false), (1.5, true)] {
             let mut particle = Particle {

@@ -178,7 +178,7 @@ pub fn run_particles(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::classical::Kinetic;
+    use crate::dispersion::Dispersion;
 
     fn spec(particles: usize, momentum: f64) -> ClassicalSpec {
         ClassicalSpec {
@@ -211,7 +211,10 @@ mod tests {
             dx,
             left_layer_end: 0,
             right_layer_start: points,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
+            dispersion: Dispersion::Continuum {
+                hbar: 1.0,
+                mass: 1.0,
+            },
         };
         let never = AtomicBool::new(false);
         // Barrier top 0.5: p = 0.8 (E = 0.32) turns back, p = 1.2 (E = 0.72) passes.
@@ -238,7 +241,10 @@ mod tests {
             dx: 1.0,
             left_layer_end: 0,
             right_layer_start: 256,
-            kinetic: Kinetic::Continuum { mass: 1.0 },
+            dispersion: Dispersion::Continuum {
+                hbar: 1.0,
+                mass: 1.0,
+            },
         };
         let never = AtomicBool::new(false);
         let mut free = spec(20_000, 0.0);

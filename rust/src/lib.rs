@@ -5,6 +5,7 @@
 pub mod classical;
 pub mod classical_ensemble;
 pub mod disorder;
+pub mod dispersion;
 pub mod ensemble;
 pub mod error;
 pub mod kernels;

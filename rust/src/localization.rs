@@ -171,10 +171,7 @@ mod tests {
             start: 0.0,
             stop: points as f64,
         }];
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let never = AtomicBool::new(false);
         let gammas = lyapunov_exponents(
             &sample(&statics, &terms),
@@ -202,10 +199,7 @@ mod tests {
             start: 100.0,
             stop: 1900.0,
         }];
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let never = AtomicBool::new(false);
         let run = |threads| {
             rayon::ThreadPoolBuilder::new()
@@ -251,10 +245,7 @@ mod tests {
     #[test]
     fn bad_regions_and_cancellation_are_errors() {
         let statics = vec![0.0; 100];
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let never = AtomicBool::new(false);
         let s = sample(&statics, &[]);
         assert!(lyapunov_exponents(&s, medium, 50..50, &[0.0], 0, 1, &never).is_err());

@@ -10,7 +10,8 @@ use std::sync::atomic::AtomicBool;
 
 use num_complex::{Complex, Complex64};
 
-use crate::classical::{Kinetic, Landscape, Particle};
+use crate::classical::{Landscape, Particle};
+use crate::dispersion::Dispersion;
 use crate::error::{invalid, CoreError};
 use crate::observables::{momentum_density, observe, wavenumbers, Detector, Observation};
 use crate::real::{narrow, Real};
@@ -43,7 +44,7 @@ pub struct Request {
     pub keep_snapshots: bool,
     pub detector: Option<Detector>,
     /// Follow a classical particle from this (position, momentum).
-    pub classical: Option<(f64, f64, Kinetic)>,
+    pub classical: Option<(f64, f64, Dispersion)>,
 }
 
 /// What a run returns.
@@ -178,9 +179,13 @@ pub fn propagate<T: Real>(
         dx: setup.dx,
         left_layer_end: setup.left_layer_end,
         right_layer_start: setup.right_layer_start,
-        kinetic: request
-            .classical
-            .map_or(Kinetic::Continuum { mass: 1.0 }, |c| c.2),
+        dispersion: request.classical.map_or(
+            Dispersion::Continuum {
+                hbar: 1.0,
+                mass: 1.0,
+            },
+            |c| c.2,
+        ),
     };
     let mut particle = request.classical.map(|(position, momentum, _)| Particle {
         position,
@@ -288,7 +293,14 @@ mod tests {
             pauses,
             keep_snapshots: true,
             detector: None,
-            classical: Some((0.0, 1.5, Kinetic::Continuum { mass: 1.0 })),
+            classical: Some((
+                0.0,
+                1.5,
+                Dispersion::Continuum {
+                    hbar: 1.0,
+                    mass: 1.0,
+                },
+            )),
         }
     }
 

@@ -248,7 +248,6 @@ class _Plan:
 
     setup: _Setup
     run: _EnsembleRun
-    kinetic: np.ndarray
     absorption: np.ndarray
     static: np.ndarray
     disorder: list[_Term]
@@ -305,7 +304,6 @@ def plan(
             spectrum,
             offsets=arguments.offsets,
         ),
-        kinetic=system.kinetic_table(),
         absorption=system.absorption(),
         static=system.static_potential(),
         disorder=_requests.disorder_terms(system.disorder),
@@ -320,9 +318,7 @@ def plan(
 
 def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
     run = _requests.share(plan.run, start, count, threads)
-    return _core.ensemble_chunks(
-        plan.setup, run, plan.kinetic, plan.absorption, plan.static, plan.disorder, plan.packets
-    )
+    return _core.ensemble_chunks(plan.setup, run, plan.absorption, plan.static, plan.disorder, plan.packets)
 
 
 def ensemble(

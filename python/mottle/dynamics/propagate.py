@@ -442,7 +442,6 @@ def propagate(
     out = _core.propagate_one(
         _requests.setup(system, arguments.step, arguments.splitting),
         _requests.run(arguments.steps, arguments.pauses, bounds, start, precision, offsets=arguments.offsets),
-        system.kinetic_table(),
         system.absorption(),
         potential,
         psi0,

@@ -82,7 +82,7 @@ fn classical_particles<'py>(
             dx: line.dx,
             left_layer_end: config.left_layer_end,
             right_layer_start: config.right_layer_start,
-            kinetic,
+            dispersion: kinetic,
         };
         in_pool(config.threads, || run_particles(&landscape, &spec, cancel))
     })?;

@@ -1,9 +1,9 @@
-//! The kinetic-energy model as Python describes it, mapped onto what the
-//! stepper's classical particle (`crate::classical::Kinetic`) and the transfer
-//! matrices (`crate::transfer::Medium`) use.
+//! The kinetic-energy model as Python describes it, mapped onto the core's one
+//! model of it (`crate::dispersion::Dispersion`), which the classical particles
+//! and the transfer matrices (`crate::transfer::Medium`) use.
 
 use super::request::tagged;
-use crate::classical::Kinetic;
+use crate::dispersion::Dispersion;
 use crate::error::CoreError;
 use crate::transfer::Medium;
 
@@ -22,26 +22,28 @@ impl ModelRequest {
         }
     }
 
+    /// The core's dispersion, checked.
+    pub(crate) fn dispersion(&self) -> Result<Dispersion, CoreError> {
+        let dispersion = match *self {
+            ModelRequest::Continuum { hbar, mass } => Dispersion::Continuum { hbar, mass },
+            ModelRequest::Lattice { hbar, hopping } => Dispersion::Lattice { hopping, hbar },
+        };
+        dispersion.validate()?;
+        Ok(dispersion)
+    }
+
     /// The wave equation on cells (continuum) or sites (lattice) `dx` apart.
     pub(crate) fn medium(&self, dx: f64) -> Result<Medium, CoreError> {
-        let medium = match *self {
-            ModelRequest::Continuum { hbar, mass } => Medium::Continuum { hbar, mass, dx },
-            ModelRequest::Lattice { hopping, .. } => Medium::Lattice { hopping, dx },
+        let medium = Medium {
+            dispersion: self.dispersion()?,
+            dx,
         };
         medium.validate()?;
         Ok(medium)
     }
 
-    /// The classical particle's kinetic energy on the same grid.
-    pub(crate) fn kinetic(&self, dx: f64) -> Result<Kinetic, CoreError> {
-        self.medium(dx)?;
-        Ok(match *self {
-            ModelRequest::Continuum { mass, .. } => Kinetic::Continuum { mass },
-            ModelRequest::Lattice { hbar, hopping } => Kinetic::Lattice {
-                hopping,
-                spacing: dx,
-                hbar,
-            },
-        })
+    /// The classical particle's kinetic energy on the same grid (`dx` checked).
+    pub(crate) fn kinetic(&self, dx: f64) -> Result<Dispersion, CoreError> {
+        Ok(self.medium(dx)?.dispersion)
     }
 }

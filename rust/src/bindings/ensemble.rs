@@ -104,13 +104,11 @@ fn ensemble_chunks<'py>(
     py: Python<'py>,
     setup: SetupRequest,
     run: EnsembleRequest,
-    kinetic: PyReadonlyArray1<'py, f64>,
     absorption: PyReadonlyArray1<'py, f64>,
     static_potential: PyReadonlyArray1<'py, f64>,
     disorder: Vec<TermRequest>,
     packets: PacketsRequest,
 ) -> PyResult<Bound<'py, PyList>> {
-    let kinetic = kinetic.as_array().to_vec();
     let absorption = absorption.as_array().to_vec();
     let static_potential = static_potential.as_array().to_vec();
     let points = setup.points;
@@ -130,7 +128,7 @@ fn ensemble_chunks<'py>(
         if threads == 0 {
             return Err(CoreError::InvalidInput("threads must be >= 1".into()));
         }
-        let setup = setup.setup(kinetic, absorption)?;
+        let setup = setup.setup(absorption)?;
         let spec = Spec {
             static_potential,
             disorder: terms(&disorder)?,

@@ -35,7 +35,13 @@ request! {
 }
 
 impl SetupRequest {
-    pub(crate) fn setup(self, kinetic: Vec<f64>, absorption: Vec<f64>) -> Result<Setup, CoreError> {
+    /// The stepper's setup, its kinetic table from the model (`Dispersion::kinetic_table`).
+    pub(crate) fn setup(self, absorption: Vec<f64>) -> Result<Setup, CoreError> {
+        let kinetic = self
+            .model
+            .medium(self.dx)?
+            .dispersion
+            .kinetic_table(self.points, self.dx);
         Ok(Setup {
             points: self.points,
             dx: self.dx,
@@ -163,13 +169,11 @@ fn propagate_one<'py>(
     py: Python<'py>,
     setup: SetupRequest,
     run: RunRequest,
-    kinetic: PyReadonlyArray1<'py, f64>,
     absorption: PyReadonlyArray1<'py, f64>,
     potential: PyReadonlyArray1<'py, f64>,
     psi: PyReadonlyArray1<'py, Complex64>,
 ) -> PyResult<Bound<'py, PyDict>> {
     // Copies: another Python thread could write these buffers while we run detached.
-    let kinetic = kinetic.as_array().to_vec();
     let absorption = absorption.as_array().to_vec();
     let potential = potential.as_array().to_vec();
     let psi = psi.as_array().to_vec();
@@ -179,7 +183,7 @@ fn propagate_one<'py>(
             Some(start) => Some((start.position, start.momentum, setup.model.kinetic(dx)?)),
             None => None,
         };
-        let setup = setup.setup(kinetic, absorption)?;
+        let setup = setup.setup(absorption)?;
         let request = Request {
             psi,
             potential,

@@ -281,11 +281,7 @@ mod tests {
         let potential: Vec<f64> = (0..400)
             .map(|j| if (160..176).contains(&j) { 1.0 } else { 0.0 })
             .collect();
-        let medium = Medium::Continuum {
-            hbar: 1.0,
-            mass: 1.0,
-            dx,
-        };
+        let medium = Medium::continuum(1.0, 1.0, dx);
         // Values in docs/validation.md: 0.2368027308, 0.4199743416, 2/3, 0.8090454696, 0.9666964295.
         for energy in [0.25, 0.5, 1.0, 1.5, 3.0] {
             let t = log_transmission(medium, &potential, energy, &never())
@@ -299,22 +295,14 @@ mod tests {
     #[test]
     fn evanescent_growth_matches_the_decay_rate() {
         // Constant V above E: growth kappa L exactly as L grows (plus ln cosh terms).
-        let medium = Medium::Continuum {
-            hbar: 1.0,
-            mass: 1.0,
-            dx: 0.5,
-        };
+        let medium = Medium::continuum(1.0, 1.0, 0.5);
         let kappa = (2.0f64 * 2.0).sqrt();
         let long = log_growth(medium, &vec![2.0; 200_000], 0.0, &never()).unwrap();
         let short = log_growth(medium, &vec![2.0; 100_000], 0.0, &never()).unwrap();
         let rate = (long - short) / (100_000.0 * 0.5);
         assert!((rate - kappa).abs() < 1e-9 * kappa, "{rate} vs {kappa}");
         // Very coarse cells go through the scaled branch.
-        let coarse = Medium::Continuum {
-            hbar: 1.0,
-            mass: 1.0,
-            dx: 40.0,
-        };
+        let coarse = Medium::continuum(1.0, 1.0, 40.0);
         let growth = log_growth(coarse, &[2.0; 1000], 0.0, &never()).unwrap();
         // At E = 0 the norm is that of (psi, dx psi'), from (0, 1):
         // psi = sinh(kappa x) / (kappa dx), dx psi' = cosh(kappa x).
@@ -326,11 +314,7 @@ mod tests {
     #[test]
     fn deep_tunnelling_keeps_its_logarithm() {
         // A barrier so long that T underflows: ln T still follows -2 kappa L.
-        let medium = Medium::Continuum {
-            hbar: 1.0,
-            mass: 1.0,
-            dx: 0.1,
-        };
+        let medium = Medium::continuum(1.0, 1.0, 0.1);
         let barrier = |cells: usize| {
             let mut potential = vec![1.0; cells + 2];
             potential[0] = 0.0;

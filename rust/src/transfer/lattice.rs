@@ -218,7 +218,7 @@ mod tests {
         potential[10] = u;
         for k in [0.3f64, 1.0, 2.5] {
             let energy = -2.0 * hopping * k.cos();
-            let medium = Medium::Lattice { hopping, dx: 1.0 };
+            let medium = Medium::lattice(hopping, 1.0);
             let t = log_transmission(medium, &potential, energy, &never())
                 .unwrap()
                 .exp();
@@ -232,10 +232,7 @@ mod tests {
         // A raised plateau shifts the band up: at E = 2.5 (above the clean band)
         // the wave propagates over a plateau of height 1.5 and nothing else does.
         let mut potential = vec![1.5; 200];
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let growth = log_growth(medium, &potential, 2.5, &never()).unwrap();
         assert!(growth.abs() < 2.0, "inside the shifted band: {growth}");
         let growth = log_growth(medium, &potential, -2.5, &never()).unwrap();
@@ -279,10 +276,7 @@ mod tests {
 
     #[test]
     fn strong_potentials_take_the_checked_path() {
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let mut potential = vec![0.0; 10_000];
         potential[5000] = 1e5; // beyond the interleaved bound: one site of growth 1e5
         let growth = log_growth(medium, &potential, 3.0, &never()).unwrap();
@@ -297,10 +291,7 @@ mod tests {
     fn lattice_growth_survives_long_chains() {
         // Outside the band with no disorder: psi grows like lambda^n with
         // lambda + 1/lambda = |E|/J.
-        let medium = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let medium = Medium::lattice(1.0, 1.0);
         let energy = 3.0;
         let lambda = 0.5 * (energy + (energy * energy - 4.0f64).sqrt());
         let n = 1_000_000;

@@ -25,6 +25,7 @@
 
 use std::sync::atomic::{AtomicBool, Ordering};
 
+use crate::dispersion::Dispersion;
 use crate::error::{invalid, CoreError};
 
 mod continuum;
@@ -39,50 +40,66 @@ const TINY: f64 = f64::from_bits((1023 - 600) << 52);
 /// `ln(2^600)`.
 const LOG_HUGE: f64 = 600.0 * std::f64::consts::LN_2;
 
-/// The wave equation a transfer matrix solves.
+/// The wave equation a transfer matrix solves: a dispersion on cells (or
+/// sites) `dx` apart.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Medium {
-    /// Kinetic energy `hbar^2 k^2 / (2 mass)`, cells of width `dx`.
-    Continuum { hbar: f64, mass: f64, dx: f64 },
-    /// Kinetic energy `-2 hopping cos(k dx)`, sites `dx` apart.
-    Lattice { hopping: f64, dx: f64 },
+pub struct Medium {
+    pub dispersion: Dispersion,
+    pub dx: f64,
 }
 
 impl Medium {
+    /// Kinetic energy `hbar^2 k^2 / (2 mass)`, cells of width `dx`.
+    pub fn continuum(hbar: f64, mass: f64, dx: f64) -> Self {
+        Medium {
+            dispersion: Dispersion::Continuum { hbar, mass },
+            dx,
+        }
+    }
+
+    /// Kinetic energy `-2 hopping cos(k dx)`, sites `dx` apart (the stationary
+    /// equation does not involve hbar).
+    pub fn lattice(hopping: f64, dx: f64) -> Self {
+        Medium {
+            dispersion: Dispersion::Lattice { hopping, hbar: 1.0 },
+            dx,
+        }
+    }
+
     pub fn validate(&self) -> Result<(), CoreError> {
-        let values: &[(&str, f64)] = match self {
-            Medium::Continuum { hbar, mass, dx } => {
-                &[("hbar", *hbar), ("mass", *mass), ("dx", *dx)]
-            }
-            Medium::Lattice { hopping, dx } => &[("hopping", *hopping), ("dx", *dx)],
-        };
-        for &(name, value) in values {
-            if !(value.is_finite() && value > 0.0) {
-                return invalid(format!("{name} must be finite and > 0, got {value}"));
-            }
+        self.dispersion.validate()?;
+        if !(self.dx.is_finite() && self.dx > 0.0) {
+            return invalid(format!("dx must be finite and > 0, got {}", self.dx));
         }
         Ok(())
     }
 
     pub fn dx(&self) -> f64 {
-        match *self {
-            Medium::Continuum { dx, .. } | Medium::Lattice { dx, .. } => dx,
-        }
+        self.dx
     }
 
     /// The propagating wavenumber in a lead of constant potential `lead` at
     /// `energy` (per unit length), or `None` where the lead has no open channel.
     pub fn lead_wavenumber(&self, energy: f64, lead: f64) -> Option<f64> {
-        match *self {
-            Medium::Continuum { hbar, mass, .. } => {
-                let kinetic = energy - lead;
-                (kinetic > 0.0).then(|| (2.0 * mass * kinetic).sqrt() / hbar)
-            }
-            Medium::Lattice { hopping, dx } => {
-                let cosine = (lead - energy) / (2.0 * hopping);
-                (cosine.abs() < 1.0).then(|| cosine.acos() / dx)
-            }
-        }
+        self.dispersion.wavenumber(energy, lead, self.dx)
+    }
+
+    /// `lead_wavenumber`, or an error naming the energies that would do
+    /// (`place` says where: "in the left lead").
+    pub fn open_lead(&self, energy: f64, lead: f64, place: &str) -> Result<f64, CoreError> {
+        self.lead_wavenumber(energy, lead).ok_or_else(|| {
+            let band = match self.dispersion.band() {
+                (low, high) if high.is_infinite() => format!("energies > {}", lead + low),
+                (low, high) => format!(
+                    "energies strictly inside the band ({}, {})",
+                    lead + low,
+                    lead + high
+                ),
+            };
+            CoreError::InvalidInput(format!(
+                "energy {energy} has no propagating wave {place} (potential {lead}): use {band}"
+            ))
+        })
     }
 }
 
@@ -184,12 +201,12 @@ pub fn log_growth(
     cancel: &AtomicBool,
 ) -> Result<f64, CoreError> {
     medium.validate()?;
-    match medium {
+    match medium.dispersion {
         // The lattice checks its input in the same pass that picks its path.
-        Medium::Lattice { hopping, .. } => lattice::growth(hopping, potential, energy, cancel),
-        Medium::Continuum { hbar, mass, dx } => {
+        Dispersion::Lattice { hopping, .. } => lattice::growth(hopping, potential, energy, cancel),
+        Dispersion::Continuum { hbar, mass } => {
             check_finite(potential, energy)?;
-            continuum::growth(hbar, mass, dx, potential, energy, cancel)
+            continuum::growth(hbar, mass, medium.dx, potential, energy, cancel)
         }
     }
 }
@@ -215,27 +232,14 @@ pub fn log_transmission(
         return invalid("a transmission needs at least two cells (one per lead)");
     }
     let (left, right) = (potential[0], potential[potential.len() - 1]);
-    let lead = |value: f64, side: &str| {
-        medium.lead_wavenumber(energy, value).ok_or_else(|| {
-            let band = match medium {
-                Medium::Continuum { .. } => format!("energies > {value}"),
-                Medium::Lattice { hopping, .. } => format!(
-                    "energies strictly inside the band ({}, {})",
-                    value - 2.0 * hopping,
-                    value + 2.0 * hopping
-                ),
-            };
-            CoreError::InvalidInput(format!(
-                "energy {energy} has no propagating wave in the {side} lead (potential {value}): use {band}"
-            ))
-        })
-    };
-    let (k_left, k_right) = (lead(left, "left")?, lead(right, "right")?);
-    match medium {
-        Medium::Lattice { hopping, dx } => {
+    let k_left = medium.open_lead(energy, left, "in the left lead")?;
+    let k_right = medium.open_lead(energy, right, "in the right lead")?;
+    let dx = medium.dx;
+    match medium.dispersion {
+        Dispersion::Lattice { hopping, .. } => {
             lattice::transmission(hopping, dx, potential, energy, k_left, k_right, cancel)
         }
-        Medium::Continuum { hbar, mass, dx } => {
+        Dispersion::Continuum { hbar, mass } => {
             continuum::transmission(hbar, mass, dx, potential, energy, k_left, k_right, cancel)
         }
     }
@@ -251,19 +255,12 @@ mod tests {
 
     #[test]
     fn closed_leads_and_bad_values_are_errors() {
-        let medium = Medium::Continuum {
-            hbar: 1.0,
-            mass: 1.0,
-            dx: 0.1,
-        };
+        let medium = Medium::continuum(1.0, 1.0, 0.1);
         let potential = [0.0, 0.0, 0.0];
         assert!(log_transmission(medium, &potential, -0.1, &never()).is_err());
         assert!(log_transmission(medium, &potential, f64::NAN, &never()).is_err());
         assert!(log_growth(medium, &[0.0, f64::INFINITY], 1.0, &never()).is_err());
-        let lattice = Medium::Lattice {
-            hopping: 1.0,
-            dx: 1.0,
-        };
+        let lattice = Medium::lattice(1.0, 1.0);
         assert!(log_transmission(lattice, &potential, 2.0, &never()).is_err());
         let cancelled = AtomicBool::new(true);
         assert_eq!(
