@@ -558,7 +558,7 @@ mod tests {
     }
 
     #[test]
-    fn normals_follow_the_normal_law() {
+    fn normals_have_unit_variance() {
         let mut stream = Stream::new(1, 2, 3);
         let n = 400_000;
         let mut values = vec![0.0; n];
