@@ -38,6 +38,14 @@ class Continuum(Kinded):
     def band_bottom(self, dx: float) -> float:
         return 0.0
 
+    def band(self, dx: float) -> tuple[float, float]:
+        """The kinetic energies a propagating wave can have: ``(0, inf)``."""
+        return 0.0, np.inf
+
+    def wavenumber(self, energy, dx: float):
+        """The positive wavenumber of kinetic energy ``energy`` inside :meth:`band`."""
+        return np.sqrt(2.0 * self.mass * np.asarray(energy, dtype=float)) / self.hbar
+
 
 @dataclass(frozen=True)
 class Lattice(Kinded):
@@ -71,6 +79,14 @@ class Lattice(Kinded):
 
     def band_bottom(self, dx: float) -> float:
         return -2.0 * self.hopping
+
+    def band(self, dx: float) -> tuple[float, float]:
+        """The kinetic energies a propagating wave can have: ``(-2 J, 2 J)``."""
+        return -2.0 * self.hopping, 2.0 * self.hopping
+
+    def wavenumber(self, energy, dx: float):
+        """The wavenumber in ``(0, pi/a)`` of kinetic energy ``energy`` inside :meth:`band`."""
+        return np.arccos(-np.asarray(energy, dtype=float) / (2.0 * self.hopping)) / dx
 
 
 Model = Continuum | Lattice

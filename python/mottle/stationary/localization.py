@@ -31,7 +31,6 @@ from .. import _checks, _core, _requests
 from ..analysis.statistics import Stat, stderr
 from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
-from ..specs.models import Lattice
 from ..specs.system import System
 
 
@@ -295,26 +294,22 @@ class TransmissionSpectrum:
         return np.histogram(self.log_samples[:, energy_index], bins=bins, density=density)
 
 
-def _lead_wavenumbers(system: System, energies: np.ndarray, lead: float, side: str) -> np.ndarray:
-    model = system.model
-    dx = system.grid.dx
-    if isinstance(model, Lattice):
-        cosine = (lead - energies) / (2.0 * model.hopping)
-        closed = np.abs(cosine) >= 1.0
-        accepted = (
-            f"energies strictly inside the band ({lead - 2 * model.hopping:g}, {lead + 2 * model.hopping:g})"
-        )
-    else:
-        closed = energies <= lead
-        accepted = f"energies > {lead:g}"
-    if np.any(closed):
+def _inside_band(model, energies: np.ndarray, dx: float, what: str) -> None:
+    """Refuse kinetic energies outside the model's band, naming the first and the band."""
+    bottom, top = model.band(dx)
+    outside = (energies <= bottom) | (energies >= top)
+    if np.any(outside):
         raise InvalidParameterError(
-            f"energy {energies[closed][0]!r} has no propagating wave in the {side} lead "
-            f"(potential {lead:g}): use {accepted}"
+            f"{what} {energies[outside][0]!r} has no propagating wave: use energies strictly inside "
+            f"the band ({bottom:g}, {top:g}) of {type(model).__name__}"
         )
-    if isinstance(model, Lattice):
-        return np.arccos(cosine) / dx
-    return np.sqrt(2.0 * model.mass * (energies - lead)) / model.hbar
+
+
+def _lead_wavenumbers(system: System, energies: np.ndarray, lead: float, side: str) -> np.ndarray:
+    model, dx = system.model, system.grid.dx
+    kinetic = energies - lead
+    _inside_band(model, kinetic, dx, f"energy minus the {side} lead's potential {lead:g},")
+    return model.wavenumber(kinetic, dx)
 
 
 def transmission_spectrum(
@@ -413,24 +408,10 @@ def born_lyapunov(system: System, energy):
         raise InvalidParameterError("born_lyapunov needs a system with disorder")
     energies, scalar = _energies(energy)
     model, dx = system.model, system.grid.dx
-    if isinstance(model, Lattice):
-        hopping = model.hopping
-        outside = np.abs(energies) >= 2.0 * hopping
-        if np.any(outside):
-            raise InvalidParameterError(
-                f"energy {energies[outside][0]!r} lies outside the band: the Born formula needs "
-                f"|E| < 2J = {2 * hopping:g}"
-            )
-        phase = np.arccos(-energies / (2.0 * hopping))  # k a
-        spectrum = np.asarray(system.disorder.power_spectrum(2.0 * phase / dx, dx), dtype=float) / dx
-        gamma = spectrum / (8.0 * hopping**2 * np.sin(phase) ** 2) / dx
-    else:
-        if np.any(energies <= 0.0):
-            raise InvalidParameterError(
-                f"energy {energies[energies <= 0.0][0]!r} is not above the band bottom: "
-                "the Born formula needs E > 0"
-            )
-        k = np.sqrt(2.0 * model.mass * energies) / model.hbar
-        spectrum = np.asarray(system.disorder.power_spectrum(2.0 * k, dx), dtype=float)
-        gamma = model.mass**2 * spectrum / (2.0 * model.hbar**4 * k**2)
+    _inside_band(model, energies, dx, "energy (the Born formula needs a propagating wave)")
+    # gamma = C~(2k) / (2 (hbar v)**2): m**2 C~(2k) / (2 hbar**4 k**2) in the continuum, and
+    # <eps**2> / (8 J**2 a sin**2(ka)) on the lattice (C~ = <eps**2> a for on-site disorder).
+    k = model.wavenumber(energies, dx)
+    spectrum = np.asarray(system.disorder.power_spectrum(2.0 * k, dx), dtype=float)
+    gamma = spectrum / (2.0 * (model.hbar * model.velocity(k, dx)) ** 2)
     return float(gamma[0]) if scalar else gamma
