@@ -114,19 +114,20 @@ impl Dispersion {
 mod tests {
     use super::*;
 
+    const MODELS: [Dispersion; 2] = [
+        Dispersion::Continuum {
+            hbar: 1.3,
+            mass: 0.7,
+        },
+        Dispersion::Lattice {
+            hopping: 0.8,
+            hbar: 1.1,
+        },
+    ];
+
     #[test]
     fn velocity_is_the_derivative_of_energy() {
-        let models = [
-            Dispersion::Continuum {
-                hbar: 1.3,
-                mass: 0.7,
-            },
-            Dispersion::Lattice {
-                hopping: 0.8,
-                hbar: 1.1,
-            },
-        ];
-        for model in models {
+        for model in MODELS {
             for p in [-2.0, -0.3, 0.0, 0.4, 1.7] {
                 let h = 1e-6;
                 let slope = (model.energy(p + h, 0.5) - model.energy(p - h, 0.5)) / (2.0 * h);
@@ -144,17 +145,7 @@ mod tests {
 
     #[test]
     fn wavenumbers_invert_the_energy() {
-        let models = [
-            Dispersion::Continuum {
-                hbar: 1.3,
-                mass: 0.7,
-            },
-            Dispersion::Lattice {
-                hopping: 0.8,
-                hbar: 1.1,
-            },
-        ];
-        for model in models {
+        for model in MODELS {
             let (dx, floor) = (0.5, 0.2);
             for k in [0.3, 1.0, 2.5] {
                 let energy = floor + model.energy(k * model.hbar(), dx);

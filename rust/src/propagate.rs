@@ -250,29 +250,7 @@ pub fn propagate<T: Real>(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::splitting::Splitting;
-
-    fn free_setup(points: usize, step: f64) -> Setup {
-        let length = 40.0;
-        let dx = length / points as f64;
-        let kinetic = wavenumbers(points, dx)
-            .iter()
-            .map(|k| 0.5 * k * k)
-            .collect();
-        Setup {
-            points,
-            dx,
-            start: -20.0,
-            hbar: 1.0,
-            kinetic,
-            absorption: vec![0.0; points],
-            left_layer_end: 0,
-            right_layer_start: points,
-            nonlinearity: 0.0,
-            step,
-            splitting: Splitting::strang(),
-        }
-    }
+    use crate::stepper::free_setup;
 
     fn packet(setup: &Setup) -> Vec<Complex64> {
         let raw: Vec<Complex64> = (0..setup.points)

@@ -376,38 +376,33 @@ fn layer_indices(setup: &Setup) -> impl Iterator<Item = usize> + Clone {
     (0..setup.left_layer_end).chain(setup.right_layer_start..setup.points)
 }
 
+/// A free particle (hbar = m = 1) in a periodic box [-20, 20) of `points` points, no
+/// absorber: the fixture of the core's unit tests.
+#[cfg(test)]
+pub(crate) fn free_setup(points: usize, step: f64) -> Setup {
+    let dx = 40.0 / points as f64;
+    let free = crate::dispersion::Dispersion::Continuum {
+        hbar: 1.0,
+        mass: 1.0,
+    };
+    Setup {
+        points,
+        dx,
+        start: -20.0,
+        hbar: 1.0,
+        kinetic: free.kinetic_table(points, dx),
+        absorption: vec![0.0; points],
+        left_layer_end: 0,
+        right_layer_start: points,
+        nonlinearity: 0.0,
+        step,
+        splitting: Splitting::strang(),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn free_setup(points: usize) -> Setup {
-        let length = 40.0;
-        let dx = length / points as f64;
-        let kinetic = (0..points)
-            .map(|j| {
-                let index = if j < points.div_ceil(2) {
-                    j as f64
-                } else {
-                    j as f64 - points as f64
-                };
-                let k = 2.0 * std::f64::consts::PI * index / length;
-                0.5 * k * k
-            })
-            .collect();
-        Setup {
-            points,
-            dx,
-            start: -20.0,
-            hbar: 1.0,
-            kinetic,
-            absorption: vec![0.0; points],
-            left_layer_end: 0,
-            right_layer_start: points,
-            nonlinearity: 0.0,
-            step: 0.01,
-            splitting: Splitting::strang(),
-        }
-    }
 
     fn assert_send_sync<T: Send + Sync>() {}
 
@@ -419,7 +414,7 @@ mod tests {
 
     #[test]
     fn free_propagation_keeps_the_norm() {
-        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let shared = Shared::<f64>::new(free_setup(64, 0.01)).unwrap();
         let mut stepper = Stepper::new(&shared);
         stepper.prepare(&[0.0; 64]).unwrap();
         let dx = shared.setup.dx;
@@ -439,7 +434,7 @@ mod tests {
 
     #[test]
     fn cancel_flag_interrupts() {
-        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let shared = Shared::<f64>::new(free_setup(64, 0.01)).unwrap();
         let mut stepper = Stepper::new(&shared);
         stepper.prepare(&[0.0; 64]).unwrap();
         let mut psi = vec![Complex64::new(1.0, 0.0); 64];
@@ -449,7 +444,7 @@ mod tests {
 
     #[test]
     fn wrong_sizes_are_errors_not_panics() {
-        let shared = Shared::<f64>::new(free_setup(64)).unwrap();
+        let shared = Shared::<f64>::new(free_setup(64, 0.01)).unwrap();
         let mut stepper = Stepper::new(&shared);
         assert!(stepper.prepare(&[0.0; 63]).is_err());
         assert!(stepper.prepare(&[f64::NAN; 64]).is_err());
@@ -458,7 +453,7 @@ mod tests {
         assert!(stepper
             .advance(&mut psi, 1, &AtomicBool::new(false))
             .is_err());
-        let mut bad = free_setup(64);
+        let mut bad = free_setup(64, 0.01);
         bad.kinetic.pop();
         assert!(Shared::<f64>::new(bad).is_err());
     }
