@@ -92,6 +92,7 @@ def test_a_point_builds_the_system_packet_and_arguments_it_names():
         "detector": None,
         "snapshots": (10.0, 20.0),
         "precision": "double",
+        "spectrum": None,
     }
 
 

@@ -45,3 +45,7 @@ SPECTRUM_MODES = 256
 LOG_NOISE_FLOOR = -64.0
 """Below exp(-64) of its peak a split-step density is double-precision rounding noise
 (|psi| errors ~1e-16 of the peak amplitude; exp(-64) = 1.6e-28)."""
+
+STUDY_POINTS = 10_000_000
+"""Most points one study may have: beyond it the list of points, the store's index and a report
+outgrow what one machine handles in seconds (split the study, or sweep fewer values)."""

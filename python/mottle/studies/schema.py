@@ -17,7 +17,7 @@ import numpy as np
 from ..errors import InvalidParameterError
 from ..specs import kinds as _kinds
 
-NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE = (
+NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE, BOOLEAN, DISTRIBUTION, TABLES = (
     "a number",
     "an integer",
     "a string",
@@ -25,7 +25,12 @@ NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE = (
     "a list of numbers",
     "a list of numbers or a .npy file name",
     "a table",
+    "a boolean",
+    "a number, { uniform = [low, high] } or { normal = [mean, std] }",
+    "an array of tables",
 )
+# The distributions a random packet's parameter may take, with their two parameters.
+DISTRIBUTIONS = {"uniform": ("low", "high"), "normal": ("mean", "std")}
 
 
 @dataclass(frozen=True)
@@ -52,8 +57,16 @@ DISORDER_KINDS = {kind: _keys(cls) for kind, cls in _kinds.kinds("disorder").ite
 ARRAYS = {"potential": POTENTIAL_KINDS, "disorder": DISORDER_KINDS}
 MODELS = {kind: _keys(cls) for kind, cls in _kinds.kinds("model").items()}
 MODEL_KEYS = {kind: tuple(sorted(keys)) for kind, keys in MODELS.items()}
-# The [packet] table describes one Gaussian packet.
+# The [packet] table describes one Gaussian packet (no kind, or kind = "gaussian"), a packet whose
+# parameters are drawn per realization (kind = "random": numbers or distributions), or a list of
+# Gaussian packets taken in turn (kind = "list", [[packet.members]] tables).
 PACKET_KIND = "gaussian"
+_GAUSSIAN_KEYS = _keys(_kinds.kinds("packet")[PACKET_KIND])
+PACKET_KINDS: dict[str, dict[str, Key]] = {
+    "gaussian": _GAUSSIAN_KEYS,
+    "random": {name: Key(DISTRIBUTION, required=True) for name in _GAUSSIAN_KEYS},
+    "list": {"members": Key(TABLES, required=True)},
+}
 _MODEL_SYSTEM_KEYS = {name: key for keys in MODELS.values() for name, key in keys.items()}
 
 SCHEMA: dict[str, dict[str, Key]] = {
@@ -69,7 +82,11 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "potential": Key(TABLE),
         "disorder": Key(TABLE),
     },
-    "packet": _keys(_kinds.kinds("packet")[PACKET_KIND]),
+    "packet": {
+        **{name: Key(DISTRIBUTION) for name in _GAUSSIAN_KEYS},
+        "kind": Key(STRING, choices=tuple(PACKET_KINDS)),
+        "members": Key(TABLES),
+    },
     "run": {
         "duration": Key(NUMBER, required=True),
         "step": Key(NUMBER, required=True),
@@ -81,10 +98,15 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "detector": Key(PAIR),
         "snapshots": Key(NUMBERS, default=[]),
         "precision": Key(STRING, default="double", choices=("double", "single")),
+        # No defaults: left out, they leave the canonical form of the studies written before them.
+        "target_stderr": Key(NUMBER),
+        "spectrum": Key(BOOLEAN),
     },
 }
 ABSORBER_KEYS = {"width": Key(NUMBER, required=True), "strength": Key(NUMBER)}
 RANGE_KEYS = ("start", "stop", "count", "scale")
+# Tables of [sweep] that are not swept paths: zipped groups and explicit points.
+SWEEP_GROUPS = ("zip", "points")
 # Keys that label a study but do not change its results: left out when two studies are compared.
 METADATA_SECTIONS = ("study",)
 
@@ -197,6 +219,18 @@ def _type_problem(key: Key, value: object) -> str | None:
         return f"must be a list of numbers or the name of a .npy file, {got}"
     if key.kind == TABLE and not isinstance(value, dict):
         return f"must be a table, {got}"
+    if key.kind == BOOLEAN and not isinstance(value, bool):
+        return f"must be true or false, {got}"
+    if key.kind == DISTRIBUTION and not is_number(value):
+        shape = "must be a number, { uniform = [low, high] } or { normal = [mean, std] }"
+        if not isinstance(value, dict) or len(value) != 1:
+            return f"{shape}, {got}"
+        ((name, pair),) = value.items()
+        if name not in DISTRIBUTIONS:
+            return f"{shape}, got a table with {name!r}{_did_you_mean(name, DISTRIBUTIONS)}"
+        if not (isinstance(pair, list) and len(pair) == 2 and all(is_number(v) for v in pair)):
+            first, second = DISTRIBUTIONS[name]
+            return f"{name} takes a list of two numbers [{first}, {second}], got {_describe(pair)}"
     return None
 
 
@@ -224,6 +258,10 @@ def _normalize(key: Key, value: Any) -> object:
         return [float(v) for v in value]
     if key.kind == VALUES and isinstance(value, list):
         return [float(v) for v in value]
+    if key.kind == DISTRIBUTION:
+        if isinstance(value, dict):
+            return {name: [float(v) for v in pair] for name, pair in value.items()}
+        return float(value)
     return value
 
 
@@ -286,6 +324,9 @@ def _check_document(document: dict, problems: _Problems) -> dict:
         if section == "sweep":
             checked["sweep"] = dict(content)
             continue
+        if section == "packet":
+            checked[section] = _check_packet(content, problems)
+            continue
         plain = {k: v for k, v in content.items() if not (section == "system" and k in ("absorber", *ARRAYS))}
         checked[section] = _check_table(plain, SCHEMA[section], (section,), problems)
         if section == "system":
@@ -306,6 +347,56 @@ def _check_document(document: dict, problems: _Problems) -> dict:
     return checked
 
 
+def _check_packet(content: dict, problems: _Problems) -> dict:
+    """The [packet] table checked against its kind's keys (no kind: one Gaussian packet)."""
+    kind = content.get("kind", PACKET_KIND)
+    if not isinstance(kind, str) or kind not in PACKET_KINDS:
+        problems.add(
+            ("packet", "kind"),
+            f"unknown kind {kind!r}; accepted: {', '.join(map(repr, PACKET_KINDS))}"
+            f"{_did_you_mean(str(kind), PACKET_KINDS)}",
+        )
+        return {}
+    spec = PACKET_KINDS[kind]
+    out: dict = {} if kind == PACKET_KIND else {"kind": kind}
+    rest = {}
+    for name, value in content.items():
+        if name == "kind":
+            continue
+        if kind == "list" and name in _GAUSSIAN_KEYS:
+            problems.add(
+                ("packet", name),
+                f"a 'list' packet takes its packets from [[packet.members]] tables; "
+                f"give each member its {name}",
+            )
+        elif kind != "list" and name == "members":
+            problems.add(("packet", name), f'members belong to kind = "list", not to a {kind!r} packet')
+        else:
+            rest[name] = value
+    if kind != "list":
+        out.update(_check_table(rest, spec, ("packet",), problems))
+        return out
+    members = rest.pop("members", None)
+    out.update(_check_table(rest, spec, ("packet",), problems))
+    if members is None:
+        return out
+    if isinstance(members, dict):
+        members = [members]
+    if not isinstance(members, list) or not all(isinstance(member, dict) for member in members):
+        problems.add(
+            ("packet", "members"), f"must be an array of tables [[packet.members]], got {_describe(members)}"
+        )
+        return out
+    if not members:
+        problems.add(("packet", "members"), "holds no packet; give at least one [[packet.members]] table")
+        return out
+    out["members"] = [
+        _check_table(member, _GAUSSIAN_KEYS, ("packet", "members", str(index)), problems)
+        for index, member in enumerate(members)
+    ]
+    return out
+
+
 def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | None]:
     """The schema key a sweep path names, or why it names nothing."""
     section, rest = path[0], path[1:]
@@ -322,6 +413,8 @@ def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | No
         )
     spec = SCHEMA[section]
     name = rest[0]
+    if section == "packet":
+        return _packet_key_at(rest, document)
     if section == "system" and name in ARRAYS:
         entries = document.get("system", {}).get(name, [])
         if len(rest) < 3:
@@ -354,8 +447,210 @@ def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | No
     return spec[name], None
 
 
-def _sweep_values(raw: object, key: Key, path: tuple[str, ...], problems: _Problems) -> list | None:
-    where = ("sweep", ".".join(path))
+def _packet_key_at(rest: tuple[str, ...], document: dict) -> tuple[Key | None, str | None]:
+    packet = document.get("packet", {})
+    kind = packet.get("kind", PACKET_KIND)
+    name = rest[0]
+    if name == "kind":
+        return None, "the kind of the packet cannot be swept; write one study per kind"
+    if kind == "list":
+        if name != "members":
+            example = name if name in _GAUSSIAN_KEYS else "wavenumber"
+            return None, (
+                f"a 'list' packet has no key {name!r}; sweep a member's, e.g. packet.members.0.{example}"
+            )
+        members = packet.get("members", [])
+        if len(rest) < 3:
+            return None, "name a member and a key, e.g. packet.members.0.wavenumber"
+        if not rest[1].isdigit() or int(rest[1]) >= len(members):
+            have = f"members 0..{len(members) - 1}" if members else "no members"
+            return None, f"packet.members has {have}; {rest[1]!r} names none of them"
+        if rest[2] not in _GAUSSIAN_KEYS or len(rest) > 3:
+            return None, f"a member has no key {'.'.join(rest[2:])!r}{_did_you_mean(rest[2], _GAUSSIAN_KEYS)}"
+        return _GAUSSIAN_KEYS[rest[2]], None
+    spec = PACKET_KINDS.get(kind, _GAUSSIAN_KEYS)
+    if name == "members":
+        return None, f'members belong to kind = "list", not to a {kind!r} packet'
+    if name in spec and len(rest) > 1 and spec[name].kind == DISTRIBUTION:
+        return (
+            None,
+            f'sweep the whole distribution, e.g. "packet.{name}" = '
+            f"[{{ uniform = [0.8, 1.0] }}, {{ uniform = [1.0, 1.2] }}]",
+        )
+    if name not in spec or len(rest) > 1:
+        return None, f"[packet] has no key {'.'.join(rest)!r}{_did_you_mean(name, spec)}"
+    return spec[name], None
+
+
+@dataclass(frozen=True)
+class Factor:
+    """Keys of a sweep that vary together (one key for a Cartesian list) and their rows of values.
+
+    The points of a study are the Cartesian product of its factors, the first varying slowest."""
+
+    keys: tuple[str, ...]
+    rows: tuple[tuple, ...]
+
+
+def _token(value: object) -> object:
+    """A hashable stand-in for a swept value (lists and tables as JSON)."""
+    return value if isinstance(value, (int, float, str)) else json.dumps(value, sort_keys=True)
+
+
+def _swept_key(dotted: object, document: dict, where: tuple[str, ...], problems: _Problems) -> Key | None:
+    if not isinstance(dotted, str):
+        problems.add(where, f"a swept key must be a dotted path, got {_describe(dotted)}")
+        return None
+    key, why = _key_at(tuple(dotted.split(".")), document)
+    if key is None:
+        problems.add(where, f"names nothing: {why}")
+    return key
+
+
+def _sweep_factors(sweep: dict, document: dict, problems: _Problems) -> list[Factor]:
+    """The factors of ``[sweep]``: its lists and ranges (one key each), its ``zip`` groups and its
+    ``points``, in the order the file gives them."""
+    factors: list[Factor] = []
+    for name, raw in sweep.items():
+        if name == "zip":
+            groups: list[tuple[tuple[str, ...], dict]] | None = (
+                [(("sweep", "zip"), raw)] if isinstance(raw, dict) else None
+            )
+            if isinstance(raw, list) and all(isinstance(group, dict) for group in raw):
+                groups = [(("sweep", "zip", str(index)), group) for index, group in enumerate(raw)]
+            if groups is None:
+                problems.add(
+                    ("sweep", "zip"),
+                    f"must be [[sweep.zip]] tables of dotted keys = lists of equal length, "
+                    f"got {_describe(raw)}",
+                )
+                continue
+            for where, group in groups:
+                factor = _zip_factor(group, where, document, problems)
+                if factor is not None:
+                    factors.append(factor)
+        elif name == "points":
+            factor = _points_factor(raw, document, problems)
+            if factor is not None:
+                factors.append(factor)
+        else:
+            where = ("sweep", str(name))
+            key = _swept_key(name, document, where, problems)
+            values = None if key is None else _sweep_values(raw, key, where, problems)
+            if values is not None:
+                factors.append(Factor((name,), tuple((value,) for value in values)))
+    first: dict[str, int] = {}
+    for index, factor in enumerate(factors):
+        for dotted in factor.keys:
+            if dotted in first:
+                problems.add(
+                    ("sweep", dotted),
+                    f"is swept twice (in {_factor_name(factors[first[dotted]])} and in "
+                    f"{_factor_name(factor)}); a key can vary in one place only",
+                )
+            first.setdefault(dotted, index)
+    return factors
+
+
+def _factor_name(factor: Factor) -> str:
+    return "a list" if len(factor.keys) == 1 else f"the group of {', '.join(factor.keys)}"
+
+
+def _zip_factor(group: dict, where: tuple[str, ...], document: dict, problems: _Problems) -> Factor | None:
+    if not group:
+        problems.add(where, "a zipped group needs at least one key = list of values")
+        return None
+    columns: dict[str, list] = {}
+    bad = False
+    for dotted, raw in group.items():
+        key = _swept_key(dotted, document, (*where, str(dotted)), problems)
+        values = None if key is None else _sweep_values(raw, key, (*where, dotted), problems, repeats=True)
+        if values is None:
+            bad = True
+        else:
+            columns[dotted] = values
+    if bad:
+        return None
+    lengths = {len(values) for values in columns.values()}
+    if len(lengths) > 1:
+        counts = ", ".join(f"{dotted} has {len(values)}" for dotted, values in columns.items())
+        problems.add(
+            where,
+            f"zipped lists differ in length ({counts}); keys that vary together need one value per point",
+        )
+        return None
+    rows = tuple(zip(*columns.values(), strict=True))
+    if not _distinct_rows(rows, tuple(columns), where, "value", problems):
+        return None
+    return Factor(tuple(columns), rows)
+
+
+def _points_factor(raw: object, document: dict, problems: _Problems) -> Factor | None:
+    where = ("sweep", "points")
+    entries = [raw] if isinstance(raw, dict) else raw
+    if not isinstance(entries, list) or not entries or not all(isinstance(entry, dict) for entry in entries):
+        problems.add(where, f"must be [[sweep.points]] tables of dotted keys = values, got {_describe(raw)}")
+        return None
+    keys = tuple(entries[0])
+    if not keys:
+        problems.add((*where, "0"), "a point needs at least one dotted key = value")
+        return None
+    types: dict[str, Key | None] = {}
+    rows = []
+    for index, entry in enumerate(entries):
+        place = (*where, str(index))
+        if tuple(sorted(entry)) != tuple(sorted(keys)):
+            missing = [k for k in keys if k not in entry]
+            extra = [k for k in entry if k not in keys]
+            detail = "; ".join(
+                part
+                for part in (
+                    f"lacks {', '.join(missing)}" if missing else "",
+                    f"adds {', '.join(extra)}" if extra else "",
+                )
+                if part
+            )
+            problems.add(place, f"{detail}: every point names the same keys as the first ({', '.join(keys)})")
+            continue
+        row: list[object] = []
+        for dotted in keys:
+            if dotted not in types:
+                types[dotted] = _swept_key(dotted, document, (*place, dotted), problems)
+            key = types[dotted]
+            why = None if key is None else _type_problem(key, entry[dotted])
+            if why:
+                problems.add((*place, dotted), why)
+            if key is None or why:
+                break
+            row.append(_normalize(key, entry[dotted]))
+        if len(row) == len(keys):
+            rows.append(tuple(row))
+    if len(rows) != len(entries) or not _distinct_rows(tuple(rows), keys, where, "point", problems):
+        return None
+    return Factor(keys, tuple(rows))
+
+
+def _distinct_rows(rows: tuple, keys: tuple, where: tuple[str, ...], noun: str, problems: _Problems) -> bool:
+    seen: dict[tuple, int] = {}
+    for index, row in enumerate(rows):
+        token = tuple(_token(value) for value in row)
+        if token in seen:
+            values = ", ".join(f"{key}={value!r}" for key, value in zip(keys, row, strict=True))
+            problems.add(
+                where, f"{noun} {index} repeats {noun} {seen[token]} ({values}); each point must differ"
+            )
+            return False
+        seen[token] = index
+    return True
+
+
+def _sweep_values(
+    raw: object, key: Key, where: tuple[str, ...], problems: _Problems, repeats: bool = False
+) -> list | None:
+    """The values of one swept key (a list or a range); ``repeats`` allows a value twice (zipped)."""
+    from ..limits import STUDY_POINTS
+
+    path = tuple(where[-1].split("."))
     if isinstance(raw, dict):
         unknown = [k for k in raw if k not in RANGE_KEYS]
         for name in unknown:
@@ -373,6 +668,11 @@ def _sweep_values(raw: object, key: Key, path: tuple[str, ...], problems: _Probl
             return None
         if isinstance(count, bool) or not isinstance(count, int) or count < 1:
             problems.add(where, f"range count must be an integer >= 1, got {_describe(count)}")
+            return None
+        if count > STUDY_POINTS:
+            problems.add(
+                where, f"range count {count:,} is more than the {STUDY_POINTS:,} points a study may have"
+            )
             return None
         if scale not in ("linear", "log"):
             problems.add(where, f"range scale must be 'linear' or 'log', got {_describe(scale)}")
@@ -415,7 +715,7 @@ def _sweep_values(raw: object, key: Key, path: tuple[str, ...], problems: _Probl
     seen = set()
     for value in values:
         token = json.dumps(value)
-        if token in seen:
+        if token in seen and not repeats:
             problems.add(where, f"the value {value!r} appears twice")
             return None
         seen.add(token)
@@ -444,10 +744,28 @@ def _fill_defaults(resolved: dict) -> dict:
 
 
 def _required(resolved: dict, problems: list[tuple[tuple[str, ...], str]]) -> None:
+    run = resolved.get("run", {})
     for section, spec in SCHEMA.items():
         for name, key in spec.items():
             if key.required and name not in resolved.get(section, {}):
+                if (section, name) == ("run", "realizations") and "target_stderr" in run:
+                    problems.append(
+                        (
+                            ("run", "target_stderr"),
+                            "stops a point once the transmission's standard error is below it, up to "
+                            "run.realizations, which is missing: add a cap, e.g. realizations = 4096",
+                        )
+                    )
+                    continue
                 problems.append(((section, name), f"is required ({key.kind})"))
+    packet = resolved.get("packet", {})
+    for name, key in PACKET_KINDS.get(packet.get("kind", PACKET_KIND), {}).items():
+        if key.required and name not in packet:
+            problems.append((("packet", name), f"is required ({key.kind})"))
+    for index, member in enumerate(packet.get("members", [])):
+        for name, key in _GAUSSIAN_KEYS.items():
+            if key.required and name not in member:
+                problems.append((("packet", "members", str(index), name), f"is required ({key.kind})"))
     for name, kinds in ARRAYS.items():
         for index, entry in enumerate(resolved["system"].get(name, [])):
             for field_name, key in kinds.get(entry.get("kind"), {}).items():

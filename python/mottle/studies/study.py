@@ -39,11 +39,12 @@ import hashlib
 import itertools
 import json
 import math
+import operator
 import os
 import re
 import shutil
 import warnings
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -53,13 +54,14 @@ from ..errors import InvalidParameterError, InvalidTypeError
 from .schema import (
     ARRAYS,
     METADATA_SECTIONS,
+    Factor,
     StudyError,
     _check_document,
     _fill_defaults,
-    _key_at,
     _Problems,
     _required,
-    _sweep_values,
+    _sweep_factors,
+    _token,
 )
 
 
@@ -141,21 +143,51 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
 
 
 def build_packet(resolved: Mapping, system=None):
-    """The :class:`~mottle.GaussianPacket` of a resolved parameter set, checked against the grid if given."""
+    """The packet of a resolved parameter set, checked against the grid (or the system's) if given:
+    a :class:`~mottle.GaussianPacket`, a :class:`~mottle.RandomPacket` (``kind = "random"``) or a
+    :class:`~mottle.PacketList` (``kind = "list"``)."""
     from ..specs.kinds import kinds
+    from ..specs.packets import Normal, PacketList, RandomPacket, Uniform
     from .schema import PACKET_KIND
 
     spec = resolved["packet"]
-    packet = _in(("packet",), lambda: kinds("packet")[PACKET_KIND].from_entry(spec, {}), spec)
+    kind = spec.get("kind", PACKET_KIND)
+    gaussian = kinds("packet")[PACKET_KIND]
+    if kind == "random":
+        laws = {"uniform": Uniform, "normal": Normal}
+
+        def draw(name):
+            value = spec[name]
+            if not isinstance(value, Mapping):
+                return value
+            ((law, pair),) = value.items()
+            return _in(("packet", name), lambda: laws[law](*pair))
+
+        drawn = {name: draw(name) for name in ("center", "wavenumber", "width")}
+        packet = _in(("packet",), lambda: RandomPacket(**drawn), spec)
+    elif kind == "list":
+        members = [
+            _in(("packet", "members", str(index)), lambda m=member: gaussian.from_entry(m, {}), member)
+            for index, member in enumerate(spec["members"])
+        ]
+        packet = _in(("packet", "members"), lambda: PacketList(members))
+    else:
+        packet = _in(("packet",), lambda: gaussian.from_entry(spec, {}), spec)
     if system is not None:
-        _in(("packet",), lambda: packet.validate(system.grid), spec)
+        grid = getattr(system, "grid", system)
+        if kind == "list":
+            for index, member in enumerate(packet.packets):
+                where = ("packet", "members", str(index))
+                _in(where, lambda m=member: m.validate(grid), spec["members"][index])
+        else:
+            _in(("packet",), lambda: packet.validate(grid), spec)
     return packet
 
 
 def run_arguments(resolved: Mapping, seed: int) -> dict:
     """Keyword arguments of :func:`mottle.ensemble` (but system and packet) for a resolved parameter set."""
     run = resolved["run"]
-    return {
+    arguments = {
         "duration": run["duration"],
         "step": run["step"],
         "realizations": run["realizations"],
@@ -165,7 +197,12 @@ def run_arguments(resolved: Mapping, seed: int) -> dict:
         "detector": detector_of(resolved),
         "snapshots": tuple(run.get("snapshots", ())),
         "precision": run.get("precision", "double"),
+        "spectrum": run.get("spectrum"),
     }
+    if run.get("target_stderr") is not None:
+        # Stop once the transmission's standard error is below it; ``realizations`` is the cap.
+        arguments["target_stderr"] = run["target_stderr"]
+    return arguments
 
 
 def detector_of(resolved: Mapping) -> tuple[float, float] | None:
@@ -194,6 +231,8 @@ def _check_run(resolved: Mapping, system) -> None:
     _in(("run", "order"), lambda: resolve_splitting(run.get("order", 2), run.get("splitting")))
     _in(("run", "realizations"), lambda: _checks.integer("realizations", run["realizations"], minimum=1))
     _in(("run", "seed"), lambda: _checks.integer("seed", run.get("seed", 0), minimum=0))
+    if run.get("target_stderr") is not None:
+        _in(("run", "target_stderr"), lambda: _checks.positive("target_stderr", run["target_stderr"]))
 
 
 class _KeyedError(Exception):
@@ -217,29 +256,63 @@ def _in(path: tuple[str, ...], make, table: Mapping | None = None):
         raise _KeyedError(path, message) from None
 
 
-@dataclass(frozen=True, eq=False)
 class StudyPoint:
-    """One parameter set of a study: the swept ``parameters``, the full ``resolved`` set and its ``seed``."""
+    """One parameter set of a study: its ``index``, the swept ``parameters``, the full ``resolved``
+    set and its ``seed``.
 
-    index: int
-    parameters: dict
-    resolved: dict
-    seed: int
-    tables: Mapping[str, np.ndarray] = field(repr=False, default_factory=dict)
+    A study's points are made when asked for (``study.points[i]``); ``resolved`` (the base tables
+    with the swept values and every default filled in) and ``seed`` are worked out on first use."""
+
+    __slots__ = ("_base", "_resolved", "_seed", "index", "parameters", "tables")
+
+    def __init__(
+        self,
+        index: int,
+        parameters: dict,
+        resolved: dict | None = None,
+        seed: int | None = None,
+        tables: Mapping[str, np.ndarray] | None = None,
+        base: dict | None = None,
+    ):
+        if resolved is None and base is None:
+            raise InvalidTypeError("StudyPoint needs its resolved parameters (or the study's base tables)")
+        self.index, self.parameters = index, parameters
+        self._resolved, self._seed, self._base = resolved, seed, base
+        self.tables = {} if tables is None else tables
+
+    @property
+    def resolved(self) -> dict:
+        if self._resolved is None:
+            assert self._base is not None  # one of the two is given (__init__)
+            self._resolved = _fill_defaults(_apply(self._base, self.parameters))
+        return self._resolved
+
+    @property
+    def seed(self) -> int:
+        if self._seed is None:
+            run = self.resolved["run"] if self._base is None else self._base["run"]
+            seed = int(self.parameters.get("run.seed", run.get("seed", 0)))
+            mode = self.parameters.get("run.seeds", run.get("seeds", "per-point"))
+            self._seed = point_seed(seed, self.parameters) if mode == "per-point" else seed
+        return self._seed
+
+    def __repr__(self) -> str:
+        return f"StudyPoint(index={self.index}, parameters={self.parameters!r}, seed={self.seed})"
 
     @property
     def realizations(self) -> int:
+        """Realizations of the point (with ``run.target_stderr``: at most this many)."""
         return int(self.resolved["run"]["realizations"])
 
     def system(self):
-        return _plain(lambda: build_system(self.resolved, self.tables))
+        return self._plain(lambda: build_system(self.resolved, self.tables))
 
     def packet(self):
-        return _plain(lambda: build_packet(self.resolved))
+        return self._plain(lambda: build_packet(self.resolved))
 
     def run_arguments(self) -> dict:
         """Keyword arguments of :func:`mottle.ensemble`: duration, step, realizations, seed, order..."""
-        return _plain(lambda: run_arguments(self.resolved, self.seed))
+        return self._plain(lambda: run_arguments(self.resolved, self.seed))
 
     def build(self):
         """``(system, packet, arguments)``: ``mo.ensemble(system, packet, **arguments)`` runs the point."""
@@ -250,16 +323,70 @@ class StudyPoint:
         """``stop=25, wavenumber=0.8``: the swept values, by short names."""
         return point_label(self.parameters, names)
 
+    def _plain(self, make):
+        # A large study checks every value of each key but not every combination before it runs
+        # (see parse_study), so a point can still fail here: say which.
+        try:
+            return make()
+        except _KeyedError as error:
+            at = f" (at point {self.index + 1}: {self.label()})" if self.parameters else ""
+            raise InvalidParameterError(f"{'.'.join(error.path)}: {error.message}{at}") from None
 
-def _plain(make):
-    try:
-        return make()
-    except _KeyedError as error:
-        raise InvalidParameterError(f"{'.'.join(error.path)}: {error.message}") from None
+
+class _Points(Sequence):
+    """The points of a study, made on demand: point ``i`` is the ``i``-th of the Cartesian product
+    of the factors (first varying slowest), numbered in mixed radix."""
+
+    def __init__(self, base: dict, factors: list[Factor], tables: Mapping[str, np.ndarray]):
+        self._base, self._factors, self._tables = base, factors, tables
+        self._sizes = [len(factor.rows) for factor in factors]
+        self._count = math.prod(self._sizes)
+
+    def __len__(self) -> int:
+        return self._count
+
+    def digits(self, index: int) -> list[int]:
+        """The row of each factor that point ``index`` takes."""
+        out = []
+        for size in reversed(self._sizes):
+            index, digit = divmod(index, size)
+            out.append(digit)
+        return out[::-1]
+
+    def index_of(self, digits) -> int:
+        index = 0
+        for size, digit in zip(self._sizes, digits, strict=True):
+            index = index * size + digit
+        return index
+
+    def parameters(self, index: int) -> dict:
+        parameters: dict = {}
+        for factor, row in zip(self._factors, self.digits(index), strict=True):
+            parameters.update(zip(factor.keys, factor.rows[row], strict=True))
+        return parameters
+
+    def __getitem__(self, item):
+        if isinstance(item, slice):
+            return [self[index] for index in range(*item.indices(self._count))]
+        index = operator.index(item)
+        if index < 0:
+            index += self._count
+        if not 0 <= index < self._count:
+            raise IndexError(f"point {item} of a study of {self._count} points")
+        return StudyPoint(index, self.parameters(index), tables=self._tables, base=self._base)
+
+    def __iter__(self):
+        for index in range(self._count):
+            yield self[index]
 
 
 def format_value(value: object) -> str:
-    """A swept value as labels and tables show it (floats to 6 significant digits)."""
+    """A swept value as labels and tables show it (floats to 6 significant digits, a distribution
+    as ``uniform(0.8, 1.2)``)."""
+    if isinstance(value, Mapping) and len(value) == 1:
+        ((law, pair),) = value.items()
+        if isinstance(pair, list):
+            return f"{law}({', '.join(format_value(v) for v in pair)})"
     return f"{value:.6g}" if isinstance(value, float) else str(value)
 
 
@@ -287,14 +414,30 @@ def short_names(parameters) -> dict[str, str]:
 
 @dataclass(frozen=True, eq=False)
 class Study:
-    """A validated study: its text, the base parameters, the sweep and its :class:`StudyPoint` list."""
+    """A validated study: its text, the base parameters, the sweep and its points.
+
+    ``points`` is a sequence of :class:`StudyPoint`, made when indexed or iterated (a study of
+    10^5 points holds its factors, not 10^5 resolved parameter sets). ``sweep`` maps each swept
+    key, in order, to its distinct values in the order the points first take them; ``swept`` is
+    its keys. ``grid`` is True when the points are the full Cartesian product of ``sweep``'s
+    values, first key varying slowest (every key a list or a range: point ``i`` is then at
+    ``numpy.unravel_index(i, [len(v) for v in sweep.values()])``); zipped groups and point lists
+    make it False, and each point's ``parameters`` then say where it lies.
+    """
 
     text: str
     source: str
     document: dict
     sweep: dict
-    points: tuple[StudyPoint, ...]
+    points: Sequence[StudyPoint]
     tables: Mapping[str, np.ndarray] = field(repr=False, default_factory=dict)
+    grid: bool = True
+    factors: tuple[Factor, ...] = field(repr=False, default=())
+
+    @property
+    def swept(self) -> tuple[str, ...]:
+        """The swept keys, in order (a point's ``parameters`` have them in this order)."""
+        return tuple(self.sweep)
 
     @property
     def title(self) -> str:
@@ -302,15 +445,26 @@ class Study:
 
     @property
     def realizations(self) -> int:
-        """Realizations over all points."""
+        """Realizations over all points (with ``run.target_stderr``: at most this many)."""
+        if "run.realizations" not in self.sweep:
+            return len(self.points) * int(self.document["run"]["realizations"])
         return sum(point.realizations for point in self.points)
 
     def canonical(self) -> dict:
-        """What the results depend on: the base parameters and the sweep (metadata left out)."""
+        """What the results depend on: the base parameters and the sweep (metadata left out).
+
+        A study whose sweep is not a full grid adds ``factors``: each zipped group, point list or
+        list, as its keys and the values they take point by point."""
         body = _fill_defaults(json.loads(json.dumps(self.document)))
         for section in METADATA_SECTIONS:
             body.pop(section, None)
-        return json.loads(json.dumps({**body, "sweep": self.sweep}))
+        out = {**body, "sweep": self.sweep}
+        if not self.grid:
+            out["factors"] = [
+                {key: [row[column] for row in factor.rows] for column, key in enumerate(factor.keys)}
+                for factor in self.factors
+            ]
+        return json.loads(json.dumps(out))
 
     def differences(self, other: Mapping) -> list[str]:
         """Dotted keys whose values differ between this study's :meth:`canonical` form and ``other``."""
@@ -412,10 +566,9 @@ def point_bytes(resolved: Mapping, system) -> int:
     return 8 * (points * (2 + 5 * snapshots) + realizations * (5 + 3 * snapshots + SPECTRUM_MODES))
 
 
-def _check_store_fits(base: dict, sweep: dict, tables, store_dir: Path, problems) -> None:
+def _check_store_fits(base: dict, first: dict, count: int, tables, store_dir: Path, problems) -> None:
     """Refuse, before enumerating the points, a sweep whose store would not fit in ``store_dir``."""
-    count = math.prod(len(values) for values in sweep.values())
-    first = _fill_defaults(_apply(base, {path: values[0] for path, values in sweep.items()}))
+    first = _fill_defaults(_apply(base, first))
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -435,13 +588,163 @@ def _check_store_fits(base: dict, sweep: dict, tables, store_dir: Path, problems
         problems.raise_if_any()
 
 
+# --------------------------------------------------------------------------- validating the points
+
+COMBINATIONS = 2048
+"""Most combinations of swept values each part of a point (its system, its packet on the grid, its
+run) is checked at before a study runs. A part that a sweep gives more combinations is checked at
+every value of each key (the others at the first point's) and at the extreme values taken
+together; a combination left out is checked when its point runs."""
+
+_GRID = ("system.points", "system.length", "system.center")
+_REGION = re.compile(r"^system\.disorder\.\d+\.(start|stop)$")
+
+# Each part: which swept keys it reads, and its check (of the resolved point, with the system's cache).
+_PARTS = (
+    ("system", lambda key: key.startswith("system.")),
+    ("packet", lambda key: key.startswith("packet.") or key in _GRID),
+    ("run", lambda key: key.startswith("run.") or key in _GRID or bool(_REGION.match(key))),
+)
+
+
+def _groups(factor: Factor, columns: list[int]) -> list[tuple[int, int]]:
+    """``(first row, rows)`` of each distinct value of ``columns`` in a factor, in order."""
+    seen: dict[tuple, list[int]] = {}
+    for row_index, row in enumerate(factor.rows):
+        token = tuple(_token(row[column]) for column in columns)
+        entry = seen.get(token)
+        if entry is None:
+            seen[token] = [row_index, 1]
+        else:
+            entry[1] += 1
+    return [(first, rows) for first, rows in seen.values()]
+
+
+def _extremes(factor: Factor, columns: list[int], groups: list[tuple[int, int]]) -> list[int]:
+    """The groups holding the first, the last, and each numeric key's smallest and largest value."""
+    chosen = {0, len(groups) - 1}
+    for column in columns:
+        numeric = [
+            (factor.rows[first][column], position)
+            for position, (first, _) in enumerate(groups)
+            if isinstance(factor.rows[first][column], (int, float))
+        ]
+        if numeric:
+            chosen |= {min(numeric)[1], max(numeric)[1]}
+    return sorted(chosen)
+
+
+def _combinations(points: _Points, reads) -> tuple[list[tuple[int, int]], bool]:
+    """Points that stand for each combination of the swept values a part reads, with how many
+    points share it; and whether that is every combination (False: a sample, see COMBINATIONS)."""
+    factors = points._factors
+    relevant = []
+    others = 1
+    for position, factor in enumerate(factors):
+        columns = [column for column, key in enumerate(factor.keys) if reads(key)]
+        if columns:
+            relevant.append((position, _groups(factor, columns), columns))
+        else:
+            others *= len(factor.rows)
+    total = math.prod(len(groups) for _, groups, _ in relevant)
+    if total <= COMBINATIONS:
+        chosen: Iterator[tuple[int, ...]] = itertools.product(
+            *(range(len(groups)) for _, groups, _ in relevant)
+        )
+    else:
+        picks: set[tuple[int, ...]] = set()
+        reference = [0] * len(relevant)
+        for slot, (_, groups, _) in enumerate(relevant):
+            for group in range(len(groups)):
+                picks.add((*reference[:slot], group, *reference[slot + 1 :]))
+        corners = [_extremes(factors[position], columns, groups) for position, groups, columns in relevant]
+        picks.update(itertools.islice(itertools.product(*corners), COMBINATIONS))
+        chosen = iter(sorted(picks))
+    out = []
+    for combination in chosen:
+        digits = [0] * len(factors)
+        shared = others
+        for (position, groups, _), group in zip(relevant, combination, strict=True):
+            digits[position], rows = groups[group]
+            shared *= rows
+        out.append((points.index_of(digits), shared))
+    return out, total <= COMBINATIONS
+
+
+def _validate(points: _Points, base: dict, tables, problems: _Problems, swept: bool) -> None:
+    """Check each part of the points once per combination of the values it reads (see COMBINATIONS)."""
+    failures: dict[tuple[str, str], list[int]] = {}
+    systems: dict[tuple, object] = {}
+    system_keys = [
+        (position, column)
+        for position, factor in enumerate(points._factors)
+        for column, key in enumerate(factor.keys)
+        if key.startswith("system.")
+    ]
+
+    def system_of(index: int, resolved: dict):
+        digits = points.digits(index)
+        token = tuple(_token(points._factors[p].rows[digits[p]][c]) for p, c in system_keys)
+        if token not in systems:
+            try:
+                systems[token] = build_system(resolved, tables)
+            except _KeyedError as error:
+                systems[token] = error
+        return systems[token]
+
+    def grid_of(resolved: dict):
+        from ..specs.grid import Grid
+
+        system = resolved["system"]
+        try:
+            return Grid(system["points"], system["length"], system.get("center", 0.0))
+        except (InvalidParameterError, InvalidTypeError):
+            return None  # the system's check names it
+
+    for part, reads in _PARTS:
+        for index, shared in _combinations(points, reads)[0]:
+            resolved = _fill_defaults(_apply(base, points.parameters(index)))
+            try:
+                with warnings.catch_warnings():
+                    # Under-resolution warnings come from the run itself, once per point.
+                    warnings.simplefilter("ignore")
+                    if part == "system":
+                        system = system_of(index, resolved)
+                        if isinstance(system, _KeyedError):
+                            raise system
+                    elif part == "packet":
+                        grid = grid_of(resolved)
+                        if grid is not None:
+                            build_packet(resolved, grid)
+                    else:
+                        system = system_of(index, resolved)
+                        if not isinstance(system, _KeyedError):
+                            _check_run(resolved, system)
+            except _KeyedError as error:
+                entry = failures.setdefault((problems.where(error.path), error.message), [index, 0])
+                entry[0] = min(entry[0], index)
+                entry[1] += shared
+    for (where, message), (first, count) in sorted(failures.items(), key=lambda item: item[1][0]):
+        if count == len(points) or not swept:
+            problems.items.append(f"{where}: {message}")
+            continue
+        more = count - 1
+        also = f" (also at {more:,} more point{'s' if more > 1 else ''})" if more else ""
+        label = point_label(points.parameters(first))
+        problems.items.append(f"{where}: at point {first + 1} ({label}): {message}{also}")
+
+
 def parse_study(
     text: str, source: str = "<study>", root: str | Path = ".", store: str | os.PathLike | None = None
 ) -> Study:
     """Validate a study given as TOML text (``root`` resolves relative .npy file names).
 
-    A sweep whose store (``store``, by default in ``root``) would not fit on its disk is refused at
-    once, before its points are enumerated."""
+    A sweep whose store (``store``, by default in ``root``) would not fit on its disk, or of more
+    than :data:`mottle.limits.STUDY_POINTS` points, is refused at once, before its points are
+    enumerated. Each part of a point (system, packet, run) is checked once per combination of
+    the swept values it reads (see :data:`COMBINATIONS`)."""
+    from ..limits import STUDY_POINTS
+
     problems = _Problems(source, text)
     document = _check_document(_parse(text, source), problems)
     tables = _load_tables(document, Path(root), problems)
@@ -450,55 +753,42 @@ def parse_study(
             problems.add((section,), f"the study needs a [{section}] table")
     problems.raise_if_any()
 
-    sweep = {}
-    for dotted, raw in document.get("sweep", {}).items():
-        path = tuple(dotted.split("."))
-        key, why = _key_at(path, document)
-        if key is None:
-            problems.add(("sweep", dotted), f"names nothing: {why}")
-            continue
-        values = _sweep_values(raw, key, path, problems)
-        if values is not None:
-            sweep[dotted] = values
+    factors = _sweep_factors(document.get("sweep", {}), document, problems)
     problems.raise_if_any()
-
+    count = math.prod(len(factor.rows) for factor in factors)
     base = {k: v for k, v in document.items() if k != "sweep"}
+    first = {key: value for factor in factors for key, value in zip(factor.keys, factor.rows[0], strict=True)}
     missing: list = []
-    _required(_apply(base, {path: values[0] for path, values in sweep.items()}), missing)
+    _required(_apply(base, first), missing)
     for path, message in missing:
         problems.add(path, message)
     problems.raise_if_any()
-    if sweep:
-        _check_store_fits(base, sweep, tables, Path(store).parent if store else Path(root), problems)
+    if factors:
+        _check_store_fits(base, first, count, tables, Path(store).parent if store else Path(root), problems)
+    if count > STUDY_POINTS:
+        sizes = " x ".join(f"{len(factor.rows):,}" for factor in factors)
+        problems.add(
+            ("sweep",),
+            f"{sizes} = {count:,} points is more than the {STUDY_POINTS:,} a study may have "
+            f"(mottle.limits.STUDY_POINTS): split it into several studies, or sweep fewer values",
+        )
+        problems.raise_if_any()
 
-    points = []
-    failures: dict[tuple[str, str], list[int]] = {}
-    combos = list(itertools.product(*sweep.values())) if sweep else [()]
-    for index, combo in enumerate(combos):
-        parameters = dict(zip(sweep, combo, strict=False))
-        resolved = _fill_defaults(_apply(base, parameters))
-        run = resolved["run"]
-        seed = point_seed(run["seed"], parameters) if run.get("seeds") == "per-point" else int(run["seed"])
-        try:
-            with warnings.catch_warnings():
-                # Under-resolution warnings come from the run itself, once per point, not at validation.
-                warnings.simplefilter("ignore")
-                system = build_system(resolved, tables)
-                build_packet(resolved, system)
-                _check_run(resolved, system)
-        except _KeyedError as error:
-            failures.setdefault((problems.where(error.path), error.message), []).append(index)
-        points.append(StudyPoint(index, parameters, resolved, seed, tables))
-    for (where, message), indices in failures.items():
-        if len(indices) == len(combos) or not sweep:
-            problems.items.append(f"{where}: {message}")
-            continue
-        first = points[indices[0]]
-        more = len(indices) - 1
-        also = f" (also at {more} more point{'s' if more > 1 else ''})" if more else ""
-        problems.items.append(f"{where}: at point {first.index + 1} ({first.label()}): {message}{also}")
+    points = _Points(base, factors, tables)
+    _validate(points, base, tables, problems, bool(factors))
     problems.raise_if_any()
-    return Study(text, source, document, sweep, tuple(points), tables)
+    sweep: dict[str, list] = {}
+    for factor in factors:
+        for column, key in enumerate(factor.keys):
+            if len(factor.keys) == 1:
+                sweep[key] = [row[0] for row in factor.rows]
+                continue
+            distinct: dict = {}
+            for row in factor.rows:
+                distinct.setdefault(_token(row[column]), row[column])
+            sweep[key] = list(distinct.values())
+    grid = all(len(factor.keys) == 1 for factor in factors)
+    return Study(text, source, document, sweep, points, tables, grid, tuple(factors))
 
 
 def load_study(path: str | os.PathLike, store: str | os.PathLike | None = None) -> Study:
@@ -516,4 +806,4 @@ def load_study(path: str | os.PathLike, store: str | os.PathLike | None = None) 
     return parse_study(text, str(path), path.parent, store)
 
 
-__all__ = ["Study", "StudyError", "StudyPoint", "load_study", "parse_study", "point_seed"]
+__all__ = ["COMBINATIONS", "Study", "StudyError", "StudyPoint", "load_study", "parse_study", "point_seed"]
