@@ -631,6 +631,11 @@ def _points_factor(raw: object, document: dict, problems: _Problems) -> Factor |
 
 
 def _distinct_rows(rows: tuple, keys: tuple, where: tuple[str, ...], noun: str, problems: _Problems) -> bool:
+    try:
+        if len(set(rows)) == len(rows):
+            return True
+    except TypeError:
+        pass  # lists or tables among the values: compare them as JSON
     seen: dict[tuple, int] = {}
     for index, row in enumerate(rows):
         token = tuple(_token(value) for value in row)

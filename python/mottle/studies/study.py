@@ -35,6 +35,7 @@ where one is known and the key path, as a :class:`StudyError`.
 
 from __future__ import annotations
 
+import collections
 import hashlib
 import itertools
 import json
@@ -590,11 +591,13 @@ def _check_store_fits(base: dict, first: dict, count: int, tables, store_dir: Pa
 
 # --------------------------------------------------------------------------- validating the points
 
-COMBINATIONS = 2048
+COMBINATIONS = 1024
 """Most combinations of swept values each part of a point (its system, its packet on the grid, its
 run) is checked at before a study runs. A part that a sweep gives more combinations is checked at
-every value of each key (the others at the first point's) and at the extreme values taken
-together; a combination left out is checked when its point runs."""
+every value of each factor (a list, a zipped group, the point list; at most this many values of
+one, evenly spread, with its first, last, smallest and largest), the others at the first point's,
+and at the factors' extreme values taken together; a combination left out is checked when its
+point runs, and a failure there names the point."""
 
 _GRID = ("system.points", "system.length", "system.center")
 _REGION = re.compile(r"^system\.disorder\.\d+\.(start|stop)$")
@@ -607,30 +610,39 @@ _PARTS = (
 )
 
 
+def _keyed(factor: Factor, columns: list[int]) -> list:
+    """Each row's values in ``columns``, hashable (lists and tables as JSON)."""
+    getter = operator.itemgetter(*columns)
+    keyed = list(map(getter, factor.rows))
+    try:
+        hash(tuple(keyed))
+    except TypeError:
+        keyed = [tuple(_token(row[column]) for column in columns) for row in factor.rows]
+    return keyed
+
+
 def _groups(factor: Factor, columns: list[int]) -> list[tuple[int, int]]:
     """``(first row, rows)`` of each distinct value of ``columns`` in a factor, in order."""
-    seen: dict[tuple, list[int]] = {}
-    for row_index, row in enumerate(factor.rows):
-        token = tuple(_token(row[column]) for column in columns)
-        entry = seen.get(token)
-        if entry is None:
-            seen[token] = [row_index, 1]
-        else:
-            entry[1] += 1
-    return [(first, rows) for first, rows in seen.values()]
+    keyed = _keyed(factor, columns)
+    counts = collections.Counter(keyed)
+    if len(counts) == len(keyed):
+        return [(row, 1) for row in range(len(keyed))]
+    last = len(keyed) - 1
+    first = {token: last - position for position, token in enumerate(reversed(keyed))}
+    return sorted((row, counts[token]) for token, row in first.items())
 
 
 def _extremes(factor: Factor, columns: list[int], groups: list[tuple[int, int]]) -> list[int]:
     """The groups holding the first, the last, and each numeric key's smallest and largest value."""
     chosen = {0, len(groups) - 1}
     for column in columns:
-        numeric = [
-            (factor.rows[first][column], position)
-            for position, (first, _) in enumerate(groups)
-            if isinstance(factor.rows[first][column], (int, float))
-        ]
-        if numeric:
-            chosen |= {min(numeric)[1], max(numeric)[1]}
+        values = [factor.rows[first][column] for first, _ in groups]
+        if all(isinstance(value, (int, float)) and not isinstance(value, bool) for value in values[:1]):
+            try:
+                array = np.asarray(values, dtype=float)
+            except (TypeError, ValueError):
+                continue
+            chosen |= {int(np.argmin(array)), int(np.argmax(array))}
     return sorted(chosen)
 
 
@@ -654,10 +666,14 @@ def _combinations(points: _Points, reads) -> tuple[list[tuple[int, int]], bool]:
     else:
         picks: set[tuple[int, ...]] = set()
         reference = [0] * len(relevant)
-        for slot, (_, groups, _) in enumerate(relevant):
-            for group in range(len(groups)):
-                picks.add((*reference[:slot], group, *reference[slot + 1 :]))
         corners = [_extremes(factors[position], columns, groups) for position, groups, columns in relevant]
+        for slot, (_, groups, _) in enumerate(relevant):
+            values = range(len(groups))
+            if len(groups) > COMBINATIONS:
+                spread = np.linspace(0, len(groups) - 1, COMBINATIONS).round().astype(int).tolist()
+                values = sorted({*spread, *corners[slot]})  # type: ignore[assignment]
+            for group in values:
+                picks.add((*reference[:slot], group, *reference[slot + 1 :]))
         picks.update(itertools.islice(itertools.product(*corners), COMBINATIONS))
         chosen = iter(sorted(picks))
     out = []
@@ -673,7 +689,7 @@ def _combinations(points: _Points, reads) -> tuple[list[tuple[int, int]], bool]:
 
 def _validate(points: _Points, base: dict, tables, problems: _Problems, swept: bool) -> None:
     """Check each part of the points once per combination of the values it reads (see COMBINATIONS)."""
-    failures: dict[tuple[str, str], list[int]] = {}
+    failures: dict[tuple[str, str], list[int]] = {}  # (where, message): [first point, points, checked]
     systems: dict[tuple, object] = {}
     system_keys = [
         (position, column)
@@ -702,7 +718,9 @@ def _validate(points: _Points, base: dict, tables, problems: _Problems, swept: b
             return None  # the system's check names it
 
     for part, reads in _PARTS:
-        for index, shared in _combinations(points, reads)[0]:
+        combinations, every = _combinations(points, reads)
+        checked = len(points) if every else sum(shared for _, shared in combinations)
+        for index, shared in combinations:
             resolved = _fill_defaults(_apply(base, points.parameters(index)))
             try:
                 with warnings.catch_warnings():
@@ -721,15 +739,17 @@ def _validate(points: _Points, base: dict, tables, problems: _Problems, swept: b
                         if not isinstance(system, _KeyedError):
                             _check_run(resolved, system)
             except _KeyedError as error:
-                entry = failures.setdefault((problems.where(error.path), error.message), [index, 0])
+                entry = failures.setdefault((problems.where(error.path), error.message), [index, 0, checked])
                 entry[0] = min(entry[0], index)
                 entry[1] += shared
-    for (where, message), (first, count) in sorted(failures.items(), key=lambda item: item[1][0]):
+    for (where, message), (first, count, checked) in sorted(failures.items(), key=lambda item: item[1][0]):
         if count == len(points) or not swept:
             problems.items.append(f"{where}: {message}")
             continue
         more = count - 1
         also = f" (also at {more:,} more point{'s' if more > 1 else ''})" if more else ""
+        if checked < len(points):
+            also = f" (at {count:,} of the {checked:,} points checked before the run, of {len(points):,})"
         label = point_label(points.parameters(first))
         problems.items.append(f"{where}: at point {first + 1} ({label}): {message}{also}")
 
@@ -783,9 +803,7 @@ def parse_study(
             if len(factor.keys) == 1:
                 sweep[key] = [row[0] for row in factor.rows]
                 continue
-            distinct: dict = {}
-            for row in factor.rows:
-                distinct.setdefault(_token(row[column]), row[column])
+            distinct = dict(zip(_keyed(factor, [column]), (row[column] for row in factor.rows), strict=True))
             sweep[key] = list(distinct.values())
     grid = all(len(factor.keys) == 1 for factor in factors)
     return Study(text, source, document, sweep, points, tables, grid, tuple(factors))
