@@ -77,7 +77,7 @@ def test_a_random_packet_draws_its_parameters_from_the_distributions_it_names():
         "width": 6.0,
     }
     # A packet of realization r is the same as the API's.
-    system, packet, arguments = point.build()
+    packet = point.packet()
     draws = {packet.packet(point.seed, r).wavenumber for r in range(8)}
     assert len(draws) == 8 and all(1.0 <= k < 1.4 for k in draws)
 
@@ -94,8 +94,8 @@ def test_a_random_packet_is_checked_at_the_extremes_of_its_distributions():
     )
     one_problem(
         RANDOM.replace("uniform = [1.0, 1.4]", "unifrom = [1.0, 1.4]"),
-        r"packet\.wavenumber: must be a number, \{ uniform = \[low, high\] \} or \{ normal = \[mean, std\] \}, "
-        r"got a table with 'unifrom'; did you mean 'uniform'\?",
+        r"packet\.wavenumber: must be a number, \{ uniform = \[low, high\] \} or "
+        r"\{ normal = \[mean, std\] \}, got a table with 'unifrom'; did you mean 'uniform'\?",
     )
     one_problem(
         RANDOM.replace("uniform = [1.0, 1.4]", "uniform = [1.0]"),
@@ -299,7 +299,8 @@ def test_zipped_lists_of_different_lengths_are_one_line_naming_keys_and_lengths(
         ZIPPED.replace("[1.0, 1.2, 1.4]", "[1.0, 1.0, 1.4]").replace(
             "start = 10.0, stop = 30.0", "start = 10.0, stop = 10.0"
         ),
-        r"sweep\.zip\.0: value 1 repeats value 0 \(packet\.wavenumber=1\.0, system\.disorder\.0\.stop=10\.0\)",
+        r"sweep\.zip\.0: value 1 repeats value 0 "
+        r"\(packet\.wavenumber=1\.0, system\.disorder\.0\.stop=10\.0\)",
     )
     one_problem(
         ZIPPED.replace('"packet.wavenumber"', '"packet.wavenumbr"'),
@@ -345,7 +346,8 @@ def test_explicit_points_are_the_points():
     )
     one_problem(
         POINTS.replace("[-10.0, 30.0]", "[-10.0, 300.0]"),
-        r"run\.detector: at point 2 \(wavenumber=1\.3, detector=\[-10\.0, 300\.0\]\): detector .* leaves the box",
+        r"run\.detector: at point 2 \(wavenumber=1\.3, detector=\[-10\.0, 300\.0\]\): "
+        r"detector .* leaves the box",
     )
 
 
@@ -415,8 +417,9 @@ def test_a_large_sweep_names_the_point_that_fails():
     # every value of each key, and the extremes together, are; a failure names its point.
     line = one_problem(
         LARGE.replace("stop = 100.0, count = 334", "stop = 300.0, count = 334"),
-        r"system\.disorder\.0: at point \d+ \(rms=0\.05, stop=2\d\d\.\d*\): GaussianDisorder region .* must lie "
-        r"inside the box .*\(at \d+ of the \d+ points checked before the run, of 100,200\)",
+        r"system\.disorder\.0: at point \d+ \(rms=0\.05, stop=2\d\d\.\d*\): "
+        r"GaussianDisorder region .* must lie inside the box "
+        r".*\(at \d+ of the \d+ points checked before the run, of 100,200\)",
     )
     assert "\n" not in line
     # A point that fails when it is built says which point it is.
@@ -435,7 +438,8 @@ def test_a_large_zip_is_checked_value_by_value():
     values = ", ".join(f"{10.0 + i * 0.001:.3f}" for i in range(5000))
     text = (
         BASE
-        + f'\n[[sweep.zip]]\n"system.disorder.0.stop" = [{values}]\n"packet.wavenumber" = {{ start = 1.0, stop = 1.2, count = 5000 }}\n'
+        + f'\n[[sweep.zip]]\n"system.disorder.0.stop" = [{values}]\n'
+        + '"packet.wavenumber" = { start = 1.0, stop = 1.2, count = 5000 }\n'
     )
     study = parse_study(text, "k.toml")
     assert len(study.points) == 5000 and not study.grid
