@@ -69,8 +69,10 @@ def test_docs_study_files_lists_every_key_of_the_schema():
         assert f"`[{section}]`" in text, section
         for key in keys:
             assert f"| `{key}` |" in text, f"[{section}] {key}"
-    for key in (*schema.ABSORBER_KEYS, *schema.RANGE_KEYS):
+    for key in (*schema.ABSORBER_KEYS, *schema.RANGE_KEYS, *schema.SWEEP_GROUPS, *schema.DISTRIBUTIONS):
         assert f"| `{key}` |" in text, key
+    for kind in schema.PACKET_KINDS:
+        assert f'`"{kind}"`' in text, kind
     for name in schema.ARRAYS:
         heading = f"### `[[system.{name}]]`"
         section = text.split(heading, 1)[1].split("\n## ", 1)[0].split("\n### ", 1)[0]

@@ -449,3 +449,25 @@ def test_a_large_zip_is_checked_value_by_value():
     one_problem(
         bad, r"system\.disorder\.0: at point 5000 \(stop=140, wavenumber=1\.2\): GaussianDisorder region"
     )
+
+
+def test_the_zipped_sweep_of_the_readme_and_docs_gives_the_points_they_say():
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    speckle = BASE.replace(
+        'kind = "gaussian"\nrms = 0.1\ncorrelation_length = 1.0',
+        'kind = "speckle"\nstrength = 0.2\ncorrelation_length = 1.0',
+    )
+    speckle = speckle.replace("length = 200.0", "length = 400.0").replace("points = 512", "points = 1024")
+    for page in ("README.md", "docs/study-files.md"):
+        text = (root / page).read_text(encoding="utf-8")
+        block = next(b for b in re.findall(r"```toml\n(.*?)```", text, re.S) if "[[sweep.zip]]" in b)
+        study = parse_study(speckle + "\n" + block, "k.toml")
+        assert [tuple(p.parameters.values()) for p in study.points][:4] == [
+            (0.1, 20.0, 200.0),
+            (0.1, 40.0, 300.0),
+            (0.1, 80.0, 500.0),
+            (0.2, 20.0, 200.0),
+        ], page
+        assert len(study.points) == 6

@@ -7,8 +7,11 @@ with its type, default and an example: docs/study-files.md): ``[system]``
 and ``[sweep]``, plus an optional ``[study]`` table (``title``, ``notes``)
 that labels reports and does not change results. ``[sweep]`` maps dotted
 paths such as ``"system.disorder.0.stop"`` to lists of values or to ranges
-``{ start, stop, count }`` (``scale = "log"`` for geometric spacing); the
-points are the Cartesian product, the first key varying slowest.
+``{ start, stop, count }`` (``scale = "log"`` for geometric spacing); its
+``[[sweep.zip]]`` groups hold lists of one length that vary together, and its
+``[[sweep.points]]`` tables name points one by one. The points are the
+Cartesian product of the lists, groups and point list (each a
+:class:`~mottle.studies.schema.Factor`), the first varying slowest.
 
 Keys (defaults in brackets): ``[system]`` points, length, center [0], model
 ["continuum" or "lattice"], hbar [1], mass [1] (continuum), hopping [1]
@@ -16,18 +19,28 @@ Keys (defaults in brackets): ``[system]`` points, length, center [0], model
 disorder entry per registered spec class (:mod:`mottle.specs.kinds`), its
 ``kind`` and its fields as keys (tabulated values: a list or a .npy file, read
 without pickles); the kinds and their keys are listed at the end.
-``[packet]`` center, wavenumber, width. ``[run]`` duration, step,
-realizations, seed [0], seeds ["per-point"], order [2], splitting ["strang" or
-"blanes-moan" by order; "yoshida" on request], detector [the
-disorder region, as in :func:`mottle.ensemble`], snapshots [none], precision
-["double"].
+``[packet]`` kind ["gaussian"; "random": :class:`~mottle.RandomPacket`, "list":
+:class:`~mottle.PacketList`], center, wavenumber, width (numbers; for a random
+packet also ``{ uniform = [low, high] }`` or ``{ normal = [mean, std] }``),
+members (``[[packet.members]]`` tables of a list). ``[run]`` duration, step,
+realizations (the cap with target_stderr), seed [0], seeds ["per-point"], order
+[2], splitting ["strang" or "blanes-moan" by order; "yoshida" on request],
+detector [the disorder region, as in :func:`mottle.ensemble`], snapshots
+[none], precision ["double"], target_stderr [none], spectrum [as
+:func:`mottle.ensemble` decides].
 
 Seeds: with ``[run] seeds = "per-point"`` (the default) each point draws its
 own disorder, from a seed derived from the study's ``seed`` and the point's
 swept values (SHA-256, 63 bits): adding values to a sweep leaves the seeds of
-the existing points unchanged. ``seeds = "shared"`` gives every point the
-study's ``seed`` itself (common random numbers: differences between points
-are less noisy, but the points are no longer independent samples).
+the existing points unchanged, and the same values reached through a list, a
+zipped group or a point list give the same seed. ``seeds = "shared"`` gives
+every point the study's ``seed`` itself (common random numbers: differences
+between points are less noisy, but the points are no longer independent
+samples).
+
+Scale: the points are made on demand and each part of a point (system, packet,
+run) is checked once per combination of the swept values it reads, sampled
+beyond :data:`COMBINATIONS`; a study of 10^5 points loads in about a second.
 
 Validation reports every problem it finds, each with the file, the line
 where one is known and the key path, as a :class:`StudyError`.
