@@ -121,6 +121,10 @@ def test_sweeping_a_random_packet_sweeps_its_distributions():
         "wavenumber=uniform(1, 1.2)",
         "wavenumber=1.3",
     ]
+    ranged = parse_study(
+        RANDOM + '\n[sweep]\n"packet.wavenumber" = { start = 1.0, stop = 1.2, count = 3 }\n', "k.toml"
+    )
+    assert [p.packet().wavenumber for p in ranged.points] == pytest.approx([1.0, 1.1, 1.2])
     one_problem(
         RANDOM + '\n[sweep]\n"packet.wavenumber.uniform" = [[0.8, 1.0]]\n',
         r"sweep\.packet\.wavenumber\.uniform: names nothing: sweep the whole distribution",

@@ -682,7 +682,7 @@ def _sweep_values(
         if scale not in ("linear", "log"):
             problems.add(where, f"range scale must be 'linear' or 'log', got {_describe(scale)}")
             return None
-        if key.kind not in (NUMBER, INTEGER):
+        if key.kind not in (NUMBER, INTEGER, DISTRIBUTION):
             problems.add(where, f"a range gives numbers, but {'.'.join(path)} must be {key.kind}")
             return None
         if scale == "log" and not (start > 0 and stop > 0):
