@@ -475,3 +475,55 @@ def test_the_zipped_sweep_of_the_readme_and_docs_gives_the_points_they_say():
             (0.2, 20.0, 200.0),
         ], page
         assert len(study.points) == 6
+
+
+def test_lists_groups_and_points_multiply_in_the_order_of_the_file():
+    text = (
+        BASE
+        + """
+[[sweep.points]]
+"packet.center" = -40.0
+"packet.width" = 6.0
+
+[[sweep.points]]
+"packet.center" = -45.0
+"packet.width" = 5.0
+
+[sweep]
+"run.seed" = [1, 2]
+
+[[sweep.zip]]
+"system.disorder.0.stop" = [10.0, 20.0]
+"run.duration" = [20.0, 25.0]
+"""
+    )
+    study = parse_study(text, "k.toml")
+    assert study.swept == (
+        "packet.center",
+        "packet.width",
+        "run.seed",
+        "system.disorder.0.stop",
+        "run.duration",
+    )
+    assert len(study.points) == 2 * 2 * 2
+    assert list(study.points[5].parameters.values()) == [-45.0, 5.0, 1, 20.0, 25.0]
+    # A swept study seed is the seed the point's own seed derives from.
+    assert study.points[5].seed == point_seed(1, study.points[5].parameters)
+
+
+def test_a_zipped_study_runs_resumes_and_refuses_its_cartesian_twin(tmp_path):
+    text = BASE + (
+        '\n[[sweep.zip]]\n"system.disorder.0.stop" = [10.0, 20.0]\n"packet.wavenumber" = [1.0, 1.3]\n'
+    )
+    study = parse_study(text, "k.toml")
+    store = tmp_path / "zip.h5"
+    stored = mo.run_study(study, store, progress=False, threads=1)
+    assert sorted(point.index for point in stored.points) == [0, 1]
+    direct = mo.ensemble(*study.points[1].build()[:2], threads=1, **study.points[1].run_arguments())
+    by_index = {point.index: point for point in stored.points}
+    assert by_index[1].result.transmission.mean == direct.transmission.mean
+    mo.run_study(parse_study(text, "k.toml"), store, progress=False, threads=1)  # nothing left to run
+    with pytest.raises(mo.StoreError, match="factors"):
+        mo.run_study(
+            parse_study(text.replace("[[sweep.zip]]\n", "[sweep]\n"), "k.toml"), store, progress=False
+        )
