@@ -13,6 +13,7 @@ use num_complex::{Complex, Complex64};
 use rayon::prelude::*;
 
 use crate::disorder::{Line, Plan, Realizer, Term};
+use crate::drive::Drive;
 use crate::error::{invalid, CoreError};
 use crate::observables::{observe, wavenumbers, Detector};
 use crate::packets::PacketSource;
@@ -39,6 +40,8 @@ pub struct Spec {
     pub seed: u64,
     /// Resolve the transmission in energy at these modes.
     pub spectrum: Option<Spectrum>,
+    /// Time-dependent terms and the twisted boundary (drawn per realization).
+    pub drive: Drive,
 }
 
 /// One chunk's per-realization samples and summed profiles.
@@ -54,6 +57,9 @@ pub struct Chunk {
     /// `count x snapshots`, realization-major.
     pub position: Vec<f64>,
     pub position_squared: Vec<f64>,
+    /// `<p>` and `<p^2>`, `count x snapshots`, realization-major.
+    pub mean_momentum: Vec<f64>,
+    pub momentum_squared: Vec<f64>,
     /// Inverse participation ratio `sum |psi|^4 dx / (sum |psi|^2 dx)^2`.
     pub participation: Vec<f64>,
     /// Sums over the chunk, `snapshots x points`.
@@ -103,6 +109,7 @@ pub fn run_chunks<T: Real>(
     }
     validate_pauses(&spec.pauses, spec.steps, setup.step)?;
     spec.packets.validate(setup.points)?;
+    spec.drive.validate(setup.points)?;
     if let Some(detector) = spec.detector {
         detector.validate(setup.points)?;
     }
@@ -187,6 +194,11 @@ fn run_chunk<T: Real>(
         potential.copy_from_slice(&spec.static_potential);
         realizer.add_to(spec.seed, index as u64, &mut potential)?;
         stepper.prepare(&potential)?;
+        stepper.set_drive(
+            &spec
+                .drive
+                .realize(n, grid.dx, grid.start, spec.seed, index as u64),
+        )?;
         spec.packets
             .fill(grid, spec.seed, index as u64, &mut initial)?;
         psi.iter_mut()
@@ -218,6 +230,8 @@ fn run_chunk<T: Real>(
             )?;
             chunk.position.push(observation.position);
             chunk.position_squared.push(observation.position_squared);
+            chunk.mean_momentum.push(observation.momentum);
+            chunk.momentum_squared.push(observation.momentum_squared);
             let row = s * n..(s + 1) * n;
             for ((((&z, d), d2), l), l2) in copy
                 .iter()

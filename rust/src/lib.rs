@@ -6,6 +6,7 @@ pub mod classical;
 pub mod classical_ensemble;
 pub mod disorder;
 pub mod dispersion;
+pub mod drive;
 pub mod ensemble;
 pub mod error;
 pub mod kernels;

@@ -37,6 +37,8 @@ pub struct Observation {
     pub position: f64,
     pub position_squared: f64,
     pub momentum: f64,
+    /// `<p^2>` (with a twist, at the momenta `hbar (k + 2 pi beta / L)`).
+    pub momentum_squared: f64,
     pub energy: f64,
     /// Inverse participation ratio `sum |psi|^4 dx / (sum |psi|^2 dx)^2` (1/length).
     pub participation: f64,
@@ -88,11 +90,18 @@ pub fn observe<T: Real>(
         quartic += rho * rho;
     }
     stepper.transform(psi, buffer);
-    let (mut spectral, mut momentum, mut kinetic) = (0.0, 0.0, 0.0);
-    for ((&z, &k), &energy) in buffer.iter().zip(wavenumbers).zip(&setup.kinetic) {
+    let (mut spectral, mut momentum, mut kinetic, mut squared) = (0.0, 0.0, 0.0, 0.0);
+    let shift = stepper.wavenumber_shift();
+    for ((&z, &k), &energy) in buffer
+        .iter()
+        .zip(wavenumbers)
+        .zip(stepper.kinetic_table())
+    {
         let weight = density(z);
+        let k = k + shift;
         spectral += weight;
         momentum += weight * k;
+        squared += weight * k * k;
         kinetic += weight * energy;
     }
     let (reflection, transmission) = match detector {
@@ -116,6 +125,7 @@ pub fn observe<T: Real>(
         position: first / norm,
         position_squared: second / norm,
         momentum: setup.hbar * momentum / spectral,
+        momentum_squared: setup.hbar * setup.hbar * squared / spectral,
         energy,
         participation: quartic * setup.dx / ((norm * setup.dx) * (norm * setup.dx)),
         reflection,

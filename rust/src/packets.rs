@@ -18,7 +18,7 @@ pub enum Draw {
 }
 
 impl Draw {
-    fn sample(&self, stream: &mut Stream) -> f64 {
+    pub(crate) fn sample(&self, stream: &mut Stream) -> f64 {
         match *self {
             Draw::Fixed(value) => value,
             Draw::Uniform(low, high) => low + (high - low) * stream.uniform(),

@@ -12,6 +12,7 @@ use num_complex::{Complex, Complex64};
 
 use crate::classical::{Landscape, Particle};
 use crate::dispersion::Dispersion;
+use crate::drive::Realized;
 use crate::error::{invalid, CoreError};
 use crate::observables::{momentum_density, observe, wavenumbers, Detector, Observation};
 use crate::real::{narrow, Real};
@@ -45,6 +46,8 @@ pub struct Request {
     pub detector: Option<Detector>,
     /// Follow a classical particle from this (position, momentum).
     pub classical: Option<(f64, f64, Dispersion)>,
+    /// The time-dependent terms and twist of this realization.
+    pub drive: Realized,
 }
 
 /// What a run returns.
@@ -135,6 +138,7 @@ impl<T: Real> Offsets<T> {
             .ok_or_else(|| CoreError::Internal(format!("no tables for offset {}", pause.offset)))?;
         let mut side = Stepper::new(shared);
         side.prepare(main.potential())?;
+        side.inherit(main);
         side.absorbed = main.absorbed;
         side.advance(copy, 1, cancel)?;
         Ok(observe(&mut side, copy, buffer, k, detector))
@@ -169,6 +173,7 @@ pub fn propagate<T: Real>(
     let offsets = Offsets::<T>::new(setup, &request.pauses)?;
     let mut stepper = Stepper::new(shared);
     stepper.prepare(&request.potential)?;
+    stepper.set_drive(&request.drive)?;
     let mut psi: Vec<Complex<T>> = request.psi.iter().map(|&z| narrow(z)).collect();
     let mut buffer = psi.clone();
     let mut copy = psi.clone();
@@ -279,6 +284,7 @@ mod tests {
                     mass: 1.0,
                 },
             )),
+            drive: Realized::default(),
         }
     }
 

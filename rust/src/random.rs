@@ -17,8 +17,10 @@ use std::sync::OnceLock;
 
 /// Purpose codes that keep independent uses of one seed apart: disorder terms
 /// use their position `0, 1, ...`, drawn packets `PACKET_PURPOSE`, and the
-/// classical particles of realization `index` `CLASSICAL_PURPOSE + index`.
+/// classical particles of realization `index` `CLASSICAL_PURPOSE + index`, drawn
+/// phases and quasimomenta of the time-dependent terms `DRIVE_PURPOSE`.
 pub const PACKET_PURPOSE: u64 = u64::MAX;
+pub const DRIVE_PURPOSE: u64 = u64::MAX - 1;
 pub const CLASSICAL_PURPOSE: u64 = 1 << 62;
 
 /// 64-bit words per batch: eight ChaCha blocks of eight words.

@@ -12,6 +12,7 @@ use std::sync::Arc;
 use num_complex::{Complex, Complex64};
 use rustfft::{Fft, FftPlanner};
 
+use crate::drive::{Realized, Strength};
 use crate::error::{invalid, CoreError};
 use crate::real::{density, narrow, Real};
 use crate::splitting::{Schedule, Splitting};
@@ -124,19 +125,8 @@ impl<T: Real> Shared<T> {
     pub fn new(setup: Setup) -> Result<Self, CoreError> {
         setup.validate()?;
         let schedule = Schedule::new(&setup.splitting);
-        let scale = 1.0 / setup.points as f64;
-        let kinetic_factors = schedule
-            .kinetic_fractions
-            .iter()
-            .map(|&fraction| {
-                let angle = -fraction * setup.step / setup.hbar;
-                setup
-                    .kinetic
-                    .iter()
-                    .map(|&energy| narrow(Complex64::from_polar(scale, angle * energy)))
-                    .collect()
-            })
-            .collect();
+        let kinetic_factors =
+            kinetic_factors(&setup, &schedule.kinetic_fractions, &setup.kinetic);
         let plans = Plans::new(setup.points);
         Ok(Shared {
             setup,
@@ -154,6 +144,81 @@ struct PotentialFactors<T: Real> {
     loss: Vec<Vec<f64>>,
     /// `-g f h / hbar` per table: the nonlinear phase per unit density.
     nonlinear_angle: Vec<T>,
+    /// Tables that leave `psi` unchanged (no potential, layer or nonlinearity): skipped.
+    identity: Vec<bool>,
+}
+
+/// The time-dependent terms of the current realization (`crate::drive`).
+#[derive(Clone)]
+struct Driven<T: Real> {
+    /// `(exp(-i V / hbar), first, every)` per kick.
+    kicks: Vec<(Vec<Complex<T>>, usize, usize)>,
+    terms: Vec<(Vec<f64>, Strength)>,
+    /// The main run's step index and time at this stepper's first step.
+    origin: (usize, f64),
+    /// The time of potential factor `i` in a step, as a fraction of the step.
+    stage_times: Vec<f64>,
+    /// Per term, `-(h / hbar) sum fraction e(t)` of the factor being applied.
+    coefficients: Vec<f64>,
+}
+
+impl<T: Real> Driven<T> {
+    /// Multiply by `exp(i sum_j c_j V_j)` for the factor made of `parts`
+    /// (fraction of the step, main-run step it belongs to, time).
+    fn apply(&mut self, psi: &mut [Complex<T>], parts: &[(f64, usize, f64)], scale: f64) {
+        if self.terms.is_empty() {
+            return;
+        }
+        for (c, (_, strength)) in self.coefficients.iter_mut().zip(&self.terms) {
+            *c = -scale
+                * parts
+                    .iter()
+                    .map(|&(fraction, member, time)| fraction * strength.at(member, time))
+                    .sum::<f64>();
+        }
+        if self.coefficients.iter().all(|&c| c == 0.0) {
+            return;
+        }
+        for (j, z) in psi.iter_mut().enumerate() {
+            let angle: f64 = self
+                .coefficients
+                .iter()
+                .zip(&self.terms)
+                .map(|(&c, (values, _))| c * values[j])
+                .sum();
+            *z = *z * narrow::<T>(Complex64::from_polar(1.0, angle));
+        }
+    }
+
+    fn kick(&self, psi: &mut [Complex<T>], member: usize) {
+        for (factor, first, every) in &self.kicks {
+            if member >= *first && (member - first).is_multiple_of(*every) {
+                T::multiply(psi, factor);
+            }
+        }
+    }
+}
+
+/// The twisted boundary: the kinetic table at `k + shift` and its factors.
+#[derive(Clone)]
+struct Twist<T: Real> {
+    shift: f64,
+    table: Vec<f64>,
+    factors: Vec<Vec<Complex<T>>>,
+}
+
+fn kinetic_factors<T: Real>(setup: &Setup, fractions: &[f64], table: &[f64]) -> Vec<Vec<Complex<T>>> {
+    let scale = 1.0 / setup.points as f64;
+    fractions
+        .iter()
+        .map(|&fraction| {
+            let angle = -fraction * setup.step / setup.hbar;
+            table
+                .iter()
+                .map(|&energy| narrow(Complex64::from_polar(scale, angle * energy)))
+                .collect()
+        })
+        .collect()
 }
 
 /// Probability removed by each absorbing layer so far.
@@ -173,6 +238,11 @@ pub struct Stepper<'a, T: Real> {
     pub absorbed: Absorbed,
     /// Real potential of the current realization (for the energy).
     potential: Vec<f64>,
+    /// Time-dependent terms and the twist of the current realization, if any.
+    driven: Option<Driven<T>>,
+    twist: Option<Twist<T>>,
+    /// Whole steps taken since `prepare`.
+    done: usize,
 }
 
 impl<'a, T: Real> Stepper<'a, T> {
@@ -186,11 +256,15 @@ impl<'a, T: Real> Stepper<'a, T> {
                 phase: vec![vec![Complex::new(T::one(), T::zero()); n]; tables],
                 loss: vec![vec![0.0; layer_points]; tables],
                 nonlinear_angle: vec![T::zero(); tables],
+                identity: vec![false; tables],
             },
             scratch: vec![Complex::new(T::zero(), T::zero()); shared.plans.scratch_len()],
             spectrum: vec![Complex::new(T::zero(), T::zero()); n],
             absorbed: Absorbed::default(),
             potential: vec![0.0; n],
+            driven: None,
+            twist: None,
+            done: 0,
         }
     }
 
@@ -234,9 +308,94 @@ impl<'a, T: Real> Stepper<'a, T> {
                 *loss = -(2.0 * decay * setup.absorption[j]).exp_m1();
             }
             self.factors.nonlinear_angle[table] = T::of(setup.nonlinearity * phase_angle);
+            let one = Complex::new(T::one(), T::zero());
+            self.factors.identity[table] = self.factors.nonlinear_angle[table] == T::zero()
+                && self.factors.loss[table].iter().all(|&l| l == 0.0)
+                && self.factors.phase[table].iter().all(|&f| f == one);
         }
         self.absorbed = Absorbed::default();
+        self.driven = None;
+        self.twist = None;
+        self.done = 0;
         Ok(())
+    }
+
+    /// Add a realization's time-dependent terms and twist (after `prepare`):
+    /// its first step is the main run's step 0 at time 0.
+    pub fn set_drive(&mut self, realized: &Realized) -> Result<(), CoreError> {
+        let setup = &self.shared.setup;
+        let n = setup.points;
+        let sizes_fit = realized.kicks.iter().all(|(v, _, _)| v.len() == n)
+            && realized.terms.iter().all(|(v, _)| v.len() == n)
+            && realized.twist.as_ref().is_none_or(|(_, _, t)| t.len() == n);
+        if !sizes_fit {
+            return invalid(format!(
+                "time-dependent profiles must have the grid's {n} points"
+            ));
+        }
+        if !realized.kicks.is_empty() || !realized.terms.is_empty() {
+            let hbar = setup.hbar;
+            let kinetic = &setup.splitting.kinetic;
+            let stage_times = (0..=kinetic.len())
+                .map(|i| kinetic[..i].iter().sum())
+                .collect();
+            self.driven = Some(Driven {
+                kicks: realized
+                    .kicks
+                    .iter()
+                    .map(|(values, first, every)| {
+                        let factor = values
+                            .iter()
+                            .map(|&v| narrow(Complex64::from_polar(1.0, -v / hbar)))
+                            .collect();
+                        (factor, *first, *every)
+                    })
+                    .collect(),
+                terms: realized.terms.clone(),
+                origin: (0, 0.0),
+                stage_times,
+                coefficients: vec![0.0; realized.terms.len()],
+            });
+        }
+        self.twist = realized.twist.as_ref().map(|(_, shift, table)| Twist {
+            shift: *shift,
+            table: table.clone(),
+            factors: kinetic_factors(setup, &self.shared.schedule.kinetic_fractions, table),
+        });
+        Ok(())
+    }
+
+    /// Take over `main`'s time-dependent terms and twist (after `prepare`),
+    /// starting where `main` is paused: a side stepper that reaches a time
+    /// between `main`'s step boundaries in one shorter step.
+    pub fn inherit(&mut self, main: &Stepper<'_, T>) {
+        if let Some(driven) = &main.driven {
+            let mut driven = driven.clone();
+            driven.origin = (
+                driven.origin.0 + main.done,
+                driven.origin.1 + main.done as f64 * main.shared.setup.step,
+            );
+            self.driven = Some(driven);
+        }
+        let setup = &self.shared.setup;
+        self.twist = main.twist.as_ref().map(|twist| Twist {
+            shift: twist.shift,
+            table: twist.table.clone(),
+            factors: kinetic_factors(setup, &self.shared.schedule.kinetic_fractions, &twist.table),
+        });
+    }
+
+    /// The kinetic energy at each wavenumber (FFT order), twisted if the run is.
+    pub fn kinetic_table(&self) -> &[f64] {
+        match &self.twist {
+            Some(twist) => &twist.table,
+            None => &self.shared.setup.kinetic,
+        }
+    }
+
+    /// `2 pi beta / L`: what the twist adds to the grid's wavenumbers (0 without).
+    pub fn wavenumber_shift(&self) -> f64 {
+        self.twist.as_ref().map_or(0.0, |twist| twist.shift)
     }
 
     fn apply_potential(&mut self, psi: &mut [Complex<T>], table: usize) {
@@ -261,6 +420,9 @@ impl<'a, T: Real> Stepper<'a, T> {
             self.absorbed.left += left * setup.dx;
             self.absorbed.right += right * setup.dx;
         }
+        if self.factors.identity[table] {
+            return;
+        }
         let phase = &self.factors.phase[table];
         let angle = self.factors.nonlinear_angle[table];
         if angle == T::zero() {
@@ -284,7 +446,11 @@ impl<'a, T: Real> Stepper<'a, T> {
         plans
             .forward
             .process_outofplace_with_scratch(psi, spectrum, &mut self.scratch);
-        T::multiply(spectrum, &self.shared.kinetic_factors[table]);
+        let factors = match &self.twist {
+            Some(twist) => &twist.factors[table],
+            None => &self.shared.kinetic_factors[table],
+        };
+        T::multiply(spectrum, factors);
         plans
             .inverse
             .process_outofplace_with_scratch(spectrum, psi, &mut self.scratch);
@@ -331,6 +497,9 @@ impl<'a, T: Real> Stepper<'a, T> {
         let (first, merged, closing) =
             (schedule.before_stage[0], schedule.merged, schedule.closing);
         let stages = schedule.kinetic_stage.len();
+        let setup = &self.shared.setup;
+        let (h, scale) = (setup.step, setup.step / setup.hbar);
+        let a = &setup.splitting.potential;
         let mut pending = first;
         for step in 0..steps {
             for stage in 0..stages {
@@ -340,8 +509,25 @@ impl<'a, T: Real> Stepper<'a, T> {
                     self.shared.schedule.before_stage[stage]
                 };
                 self.apply_potential(psi, potential);
+                if let Some(driven) = self.driven.as_mut() {
+                    let member = driven.origin.0 + self.done;
+                    let start = driven.origin.1 + self.done as f64 * h;
+                    if stage == 0 {
+                        if step == 0 {
+                            driven.apply(psi, &[(a[0], member, start)], scale);
+                        } else {
+                            let parts = [(a[stages], member - 1, start), (a[0], member, start)];
+                            driven.apply(psi, &parts, scale);
+                        }
+                        driven.kick(psi, member);
+                    } else {
+                        let time = start + driven.stage_times[stage] * h;
+                        driven.apply(psi, &[(a[stage], member, time)], scale);
+                    }
+                }
                 self.apply_kinetic(psi, self.shared.schedule.kinetic_stage[stage]);
             }
+            self.done += 1;
             if let Some((points, record)) = probe.as_mut() {
                 for &point in points.iter() {
                     let z = psi[point];
@@ -354,6 +540,11 @@ impl<'a, T: Real> Stepper<'a, T> {
             }
         }
         self.apply_potential(psi, closing);
+        if let Some(driven) = self.driven.as_mut() {
+            let member = driven.origin.0 + self.done - 1;
+            let end = driven.origin.1 + self.done as f64 * h;
+            driven.apply(psi, &[(a[stages], member, end)], scale);
+        }
         Ok(())
     }
 

@@ -7,6 +7,7 @@ use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList};
 
 use super::disorder::{terms, TermRequest};
+use super::drive::DriveRequest;
 use super::error::to_pyerr;
 use super::packets::PacketsRequest;
 use super::propagate::{detector, pauses as pauses_of, Precision, SetupRequest};
@@ -74,6 +75,13 @@ fn chunk_dict<'py>(
             snapshots,
         ),
         ("participation", chunk.participation, chunk.count, snapshots),
+        ("mean_momentum", chunk.mean_momentum, chunk.count, snapshots),
+        (
+            "momentum_squared",
+            chunk.momentum_squared,
+            chunk.count,
+            snapshots,
+        ),
         ("density", chunk.density, snapshots, points),
         ("density_squared", chunk.density_squared, snapshots, points),
         ("log_density", chunk.log_density, snapshots, points),
@@ -98,7 +106,9 @@ fn chunk_dict<'py>(
 }
 
 /// Run realizations `start .. start+count` of an ensemble; returns one dict per chunk, in order.
+/// `drive`: the time-dependent terms and twist, drawn per realization.
 #[pyfunction]
+#[pyo3(signature = (setup, run, absorption, static_potential, disorder, packets, drive=None))]
 #[allow(clippy::too_many_arguments)]
 fn ensemble_chunks<'py>(
     py: Python<'py>,
@@ -108,6 +118,7 @@ fn ensemble_chunks<'py>(
     static_potential: PyReadonlyArray1<'py, f64>,
     disorder: Vec<TermRequest>,
     packets: PacketsRequest,
+    drive: Option<DriveRequest>,
 ) -> PyResult<Bound<'py, PyList>> {
     let absorption = absorption.as_array().to_vec();
     let static_potential = static_potential.as_array().to_vec();
@@ -128,8 +139,14 @@ fn ensemble_chunks<'py>(
         if threads == 0 {
             return Err(CoreError::InvalidInput("threads must be >= 1".into()));
         }
+        let dispersion = setup.model.kinetic(setup.dx)?;
+        let drive = match drive {
+            Some(drive) => drive.drive(dispersion, setup.points)?,
+            None => crate::drive::Drive::default(),
+        };
         let setup = setup.setup(absorption)?;
         let spec = Spec {
+            drive,
             static_potential,
             disorder: terms(&disorder)?,
             packets: packets.into_source(),

@@ -16,6 +16,7 @@ use error::to_pyerr;
 mod classical;
 mod disorder;
 mod dispersion;
+mod drive;
 mod ensemble;
 mod error;
 mod localization;

@@ -17,7 +17,7 @@ tagged! {
 }
 
 impl DrawRequest {
-    fn draw(&self) -> Draw {
+    pub(crate) fn draw(&self) -> Draw {
         match *self {
             DrawRequest::Fixed { value } => Draw::Fixed(value),
             DrawRequest::Uniform { low, high } => Draw::Uniform(low, high),

@@ -9,9 +9,11 @@ use pyo3::prelude::*;
 use pyo3::types::PyDict;
 
 use super::dispersion::ModelRequest;
+use super::drive::DriveRequest;
 use super::error::to_pyerr;
 use super::request::request;
 use super::{run_detached, table};
+use crate::drive::Realized;
 use crate::error::CoreError;
 use crate::observables::{Detector, Observation};
 use crate::propagate::{propagate, Output, Pause, Request};
@@ -156,6 +158,7 @@ pub(crate) fn observations_dict<'py>(
     dict.set_item("position", column(|o| o.position))?;
     dict.set_item("position_squared", column(|o| o.position_squared))?;
     dict.set_item("momentum", column(|o| o.momentum))?;
+    dict.set_item("momentum_squared", column(|o| o.momentum_squared))?;
     dict.set_item("energy", column(|o| o.energy))?;
     dict.set_item("participation", column(|o| o.participation))?;
     dict.set_item("reflection", column(|o| o.reflection))?;
@@ -164,7 +167,10 @@ pub(crate) fn observations_dict<'py>(
 }
 
 /// Propagate one wavefunction; see `mottle.propagate` for the conventions.
+/// `drive`: the time-dependent terms and twist, with the (seed, index) of the
+/// realization they are drawn for.
 #[pyfunction]
+#[pyo3(signature = (setup, run, absorption, potential, psi, drive=None))]
 fn propagate_one<'py>(
     py: Python<'py>,
     setup: SetupRequest,
@@ -172,6 +178,7 @@ fn propagate_one<'py>(
     absorption: PyReadonlyArray1<'py, f64>,
     potential: PyReadonlyArray1<'py, f64>,
     psi: PyReadonlyArray1<'py, Complex64>,
+    drive: Option<(DriveRequest, u64, u64)>,
 ) -> PyResult<Bound<'py, PyDict>> {
     // Copies: another Python thread could write these buffers while we run detached.
     let absorption = absorption.as_array().to_vec();
@@ -183,8 +190,15 @@ fn propagate_one<'py>(
             Some(start) => Some((start.position, start.momentum, setup.model.kinetic(dx)?)),
             None => None,
         };
+        let realized = match drive {
+            Some((drive, seed, index)) => drive
+                .drive(setup.model.kinetic(dx)?, setup.points)?
+                .realize(setup.points, dx, setup.start, seed, index),
+            None => Realized::default(),
+        };
         let setup = setup.setup(absorption)?;
         let request = Request {
+            drive: realized,
             psi,
             potential,
             steps: run.steps,
