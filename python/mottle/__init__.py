@@ -34,7 +34,7 @@ from .specs.disorder import *  # noqa: F403 (every disorder model, listed once i
 from .specs.grid import Grid
 from .specs.models import Continuum, Lattice
 from .specs.packets import GaussianPacket, Normal, PacketList, RandomPacket, Uniform, Wavefunction
-from .specs.potentials import Barrier, Harmonic, Tabulated
+from .specs.potentials import Barrier, Cosine, Harmonic, Kicked, Modulated, Switched, Tabulated
 from .specs.system import System
 from .stationary.localization import (
     Lyapunov,
@@ -54,6 +54,7 @@ __all__ = [
     "Absorber",
     "Barrier",
     "Continuum",
+    "Cosine",
     "EnsemblePartial",
     "EnsembleResult",
     "GaussianPacket",
@@ -61,7 +62,9 @@ __all__ = [
     "Harmonic",
     "InvalidParameterError",
     "InvalidTypeError",
+    "Kicked",
     "Lattice",
+    "Modulated",
     "MottleError",
     "Normal",
     "PacketList",
@@ -75,6 +78,7 @@ __all__ = [
     "StudyError",
     "StudyInterrupted",
     "StudyPoint",
+    "Switched",
     "System",
     "Tabulated",
     "UnderResolvedWarning",

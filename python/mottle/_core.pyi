@@ -193,12 +193,50 @@ class _Particles(TypedDict):
     right_layer_start: int
     threads: int
 
+class _TableProfile(TypedDict):
+    kind: Literal["table"]
+    values: npt.NDArray[np.float64]
+
+class _CosineProfile(TypedDict):
+    kind: Literal["cosine"]
+    amplitude: float
+    wavenumber: float
+    phase: _Draw
+
+_Profile = _TableProfile | _CosineProfile
+
+class _Kick(TypedDict):
+    profile: _Profile
+    first: int
+    every: int
+
+class _ModulatedTerm(TypedDict):
+    kind: Literal["modulated"]
+    profile: _Profile
+    depth: float
+    frequency: float
+    phase: _Draw
+
+class _SwitchedTerm(TypedDict):
+    kind: Literal["switched"]
+    profile: _Profile
+    on: int
+    off: int | None
+
+_TimeTerm = _ModulatedTerm | _SwitchedTerm
+
+class _Drive(TypedDict):
+    kicks: list[_Kick]
+    terms: list[_TimeTerm]
+    quasimomentum: _Draw | None
+
 def propagate_one(
     setup: _Setup,
     run: _Run,
     absorption: npt.NDArray[np.float64],
     potential: npt.NDArray[np.float64],
     psi: npt.NDArray[np.complex128],
+    drive: tuple[_Drive, int, int] | None = None,
 ) -> dict[str, Any]: ...
 def realize(
     line: _Line,
@@ -215,6 +253,7 @@ def ensemble_chunks(
     static_potential: npt.NDArray[np.float64],
     disorder: list[_Term],
     packets: _Packets,
+    drive: _Drive | None = None,
 ) -> list[dict[str, Any]]: ...
 def lyapunov_exponents_of(
     line: _Line,

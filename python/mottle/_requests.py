@@ -22,18 +22,22 @@ if TYPE_CHECKING:
     from ._core import (
         _ClassicalStart,
         _Draw,
+        _Drive,
         _EnsembleRun,
+        _Kick,
         _Line,
         _Model,
         _Packets,
         _Particles,
         _Precision,
+        _Profile,
         _Realizations,
         _Run,
         _Setup,
         _Spectrum,
         _Splitting,
         _Term,
+        _TimeTerm,
     )
     from .specs.disorder import Disorder
     from .specs.grid import Grid
@@ -224,3 +228,44 @@ def particles(
         "right_layer_start": right_start,
         "threads": int(threads),
     }
+
+
+def table_profile(values) -> _Profile:
+    """A time-dependent term's ``V(x)`` given at the grid points."""
+    return {"kind": "table", "values": np.ascontiguousarray(values, dtype=np.float64)}
+
+
+def cosine_profile(amplitude: float, wavenumber: float, phase: object) -> _Profile:
+    """``amplitude cos(wavenumber x + phase)``, the phase fixed or drawn per realization."""
+    return {"kind": "cosine", "amplitude": float(amplitude), "wavenumber": float(wavenumber), "phase": draw(phase)}
+
+
+def drive(system: System, step: float, steps: int) -> _Drive | None:
+    """The time-dependent terms (kicks and switches as whole step counts) and the quasimomentum, or
+    None for a static, periodic run."""
+    from .dynamics.drive import KickSteps, SwitchSteps, drive_steps, is_driven
+
+    if not is_driven(system):
+        return None
+    grid, model = system.grid, system.model
+    kicks: list[_Kick] = []
+    terms: list[_TimeTerm] = []
+    for item in drive_steps(system, step, steps):
+        if isinstance(item, KickSteps):
+            profile = item.term.profile_request(grid, model)
+            kicks.append({"profile": profile, "first": item.first, "every": item.every})
+        elif isinstance(item, SwitchSteps):
+            profile = item.term.profile_request(grid, model)
+            terms.append({"kind": "switched", "profile": profile, "on": item.on, "off": item.off})
+        else:
+            terms.append(
+                {
+                    "kind": "modulated",
+                    "profile": item.profile_request(grid, model),
+                    "depth": float(item.depth),
+                    "frequency": float(item.frequency),
+                    "phase": draw(item.phase),
+                }
+            )
+    quasimomentum = draw(grid.quasimomentum) if grid.twisted else None
+    return {"kicks": kicks, "terms": terms, "quasimomentum": quasimomentum}

@@ -63,6 +63,8 @@ pub struct Output {
     pub last: Observation,
     /// The classical particle at each pause.
     pub classical: Vec<Particle>,
+    /// The quasimomentum `beta` of the run (0 without a twist).
+    pub quasimomentum: f64,
 }
 
 /// Pauses must increase strictly in time and lie in `(0, steps x step]`.
@@ -213,6 +215,7 @@ pub fn propagate<T: Real>(
         observations: Vec::with_capacity(request.pauses.len()),
         last: Observation::default(),
         classical: Vec::new(),
+        quasimomentum: request.drive.twist.as_ref().map_or(0.0, |twist| twist.0),
     };
     let mut done = 0;
     for &pause in &request.pauses {

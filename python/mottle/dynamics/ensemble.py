@@ -26,13 +26,13 @@ from .realize import realize
 from .spectrum import Spectrum, settling_problem, spectrum_config
 
 if TYPE_CHECKING:
-    from .._core import _EnsembleRun, _Packets, _Setup, _Term
+    from .._core import _Drive, _EnsembleRun, _Packets, _Setup, _Term
 
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""
 
 _SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right")
-_PER_SNAPSHOT = ("position", "position_squared", "participation")
+_PER_SNAPSHOT = ("position", "position_squared", "participation", "mean_momentum", "momentum_squared")
 _PER_MODE = ("spectrum", "spectrum_settling")
 _MAX_MODES = limits.SPECTRUM_MODES
 _PROFILES = ("density", "density_squared", "log_density", "log_density_squared", "momentum")
@@ -103,7 +103,14 @@ class EnsembleResult:
     (``<|phi(k)|^2>`` at the increasing wavenumbers ``k``, normalized so that
     ``sum momentum dk = norm``). ``second_moment`` is the mean over realizations
     of ``<(x - <x>)^2>`` and ``participation`` the mean inverse participation
-    ratio ``sum |psi|^4 dx / (sum |psi|^2 dx)^2`` (1/length), per snapshot.
+    ratio ``sum |psi|^4 dx / (sum |psi|^2 dx)^2`` (1/length), per snapshot;
+    ``momentum_squared`` is ``<p^2>`` per snapshot as a :class:`Stat` over
+    realizations (``samples["momentum_squared"]``, with ``samples["mean_momentum"]``).
+    With a twisted boundary the per-realization ``<p>`` and ``<p^2>`` are at each
+    realization's exact momenta ``hbar (n + beta) 2 pi / L``; the ``momentum``
+    profile is accumulated by mode ``n``, so with a drawn ``beta`` bin ``n`` holds
+    every momentum in ``[n, n + 1) 2 pi hbar / L`` and ``k`` are the bins' left
+    edges plus the fixed ``beta`` (``+ 1/2``, the bins' centres, for a drawn one).
     ``step`` is the step the runs used (``duration / ceil(duration / step)``, see
     :func:`mottle.propagate`). With a spectrum, the runs warn
     (:class:`UnderResolvedWarning`) when ``T(k)`` has not settled by their end.
@@ -159,6 +166,12 @@ class EnsembleResult:
     @property
     def participation(self) -> np.ndarray:
         return np.mean(self.samples["participation"], axis=0)
+
+    @property
+    def momentum_squared(self) -> list[Stat]:
+        """``<p^2>`` at each snapshot, a :class:`Stat` over realizations."""
+        values = np.asarray(self.samples["momentum_squared"], dtype=float)
+        return [Stat.of(values[:, s]) for s in range(values.shape[1])]
 
     def to_arrays(self) -> dict[str, np.ndarray]:
         """Every field as a numpy array (samples prefixed ``samples/``), for stores."""
@@ -229,7 +242,7 @@ def _finish(
         seed=seed,
         times=times,
         x=np.asarray(system.grid.x),
-        k=np.fft.fftshift(np.asarray(system.grid.k)),
+        k=np.fft.fftshift(np.asarray(system.grid.k)) + _bin_shift(system.grid),
         samples=samples,
         density=density,
         density_stderr=density_stderr,
@@ -240,6 +253,15 @@ def _finish(
         spectrum_energies=np.asarray(modes_info[1], dtype=float),
         step=float(step),
     )
+
+
+def _bin_shift(grid) -> float:
+    """Where the momentum profile's bins sit: the fixed twist, or the bins' centres for a drawn one."""
+    if not grid.twisted:
+        return 0.0
+    if isinstance(grid.quasimomentum, float):
+        return grid.shift()
+    return grid.shift(0.5)
 
 
 @dataclass(frozen=True, eq=False)
@@ -257,6 +279,7 @@ class _Plan:
     modes_info: tuple
     step: float
     duration: float
+    drive: _Drive | None = None
 
 
 def plan(
@@ -283,7 +306,9 @@ def plan(
     seed = _checks.integer("seed", seed, minimum=0)
     _checks.choice("precision", precision, ("double", "single"))
     first = packet if isinstance(packet, (GaussianPacket, Wavefunction)) else packet.packet(seed, 0)
-    warn_if_coarse(system, first, arguments.step, realize(system, seed, 0))
+    from .drive import felt_potential
+
+    warn_if_coarse(system, first, arguments.step, felt_potential(system, realize(system, seed, 0)))
     if spectrum not in (None, True, False):
         raise InvalidTypeError(f"spectrum must be None, True or False, got {spectrum!r}")
     spectrum = spectrum_config(system, packet, arguments.bounds, arguments.step, arguments.duration, spectrum)
@@ -313,12 +338,15 @@ def plan(
         modes_info=modes_info,
         step=arguments.step,
         duration=arguments.duration,
+        drive=_requests.drive(system, arguments.step, arguments.steps),
     )
 
 
 def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
     run = _requests.share(plan.run, start, count, threads)
-    return _core.ensemble_chunks(plan.setup, run, plan.absorption, plan.static, plan.disorder, plan.packets)
+    return _core.ensemble_chunks(
+        plan.setup, run, plan.absorption, plan.static, plan.disorder, plan.packets, plan.drive
+    )
 
 
 def ensemble(

@@ -40,7 +40,12 @@ class Run:
     :func:`propagate`). Per snapshot, as :class:`mottle.EnsembleResult` has them:
     ``energy``, ``second_moment``, ``participation`` (inverse participation ratio
     ``sum |psi|**4 dx / (sum |psi|**2 dx)**2``, 1/length) and ``momentum_density``
-    (``|phi(k)|**2`` at the increasing wavenumbers ``k``, ``sum momentum_density dk = norm``).
+    (``|phi(k)|**2`` at the increasing wavenumbers ``k``, ``sum momentum_density dk = norm``) and
+    ``momentum_squared`` (``<p**2>``). With a twisted boundary (``Grid(quasimomentum=beta)``)
+    ``psi`` and ``snapshots`` hold the periodic part ``exp(-2 pi i beta x / L) psi``, ``k`` are the
+    twisted wavenumbers ``2 pi (n + beta) / L``, ``quasimomentum`` is the ``beta`` of this run (drawn
+    for ``(seed, index)`` when the grid draws it) and ``momentum`` and ``momentum_squared`` are at
+    ``hbar k``. ``energy`` counts the static potential only (not the time-dependent terms).
     """
 
     times: np.ndarray
@@ -68,6 +73,8 @@ class Run:
     participation: np.ndarray
     momentum_density: np.ndarray
     k: np.ndarray
+    momentum_squared: np.ndarray | None = None
+    quasimomentum: float = 0.0
 
     @property
     def second_moment(self) -> np.ndarray:
@@ -247,6 +254,9 @@ def run_arguments(
             stacklevel=3,
         )
     pauses, offsets, times = pauses_for(snapshots, used, steps)
+    from .drive import drive_steps
+
+    drive_steps(system, used, steps)  # kicks and switches land on steps, or a one-line error
     if default_to_disorder:
         detector = default_detector(system, detector)
     detector = check_detector(detector, system.grid)
@@ -401,7 +411,9 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
     from .realize import realize
 
     potential = realize(system, seed, index)
-    warn_if_coarse(system, packet, arguments.step, potential)
+    from .drive import felt_potential
+
+    warn_if_coarse(system, packet, arguments.step, felt_potential(system, potential))
     return packet, arguments, potential
 
 
@@ -439,12 +451,14 @@ def propagate(
     bounds = arguments.bounds
     psi0 = packet.values(system.grid).astype(np.complex128)
     start = initial_phase_space(system, packet) if classical else None
+    drive = _requests.drive(system, arguments.step, arguments.steps)
     out = _core.propagate_one(
         _requests.setup(system, arguments.step, arguments.splitting),
         _requests.run(arguments.steps, arguments.pauses, bounds, start, precision, offsets=arguments.offsets),
         system.absorption(),
         potential,
         psi0,
+        None if drive is None else (drive, int(seed), int(index)),
     )
     last, seen = out["last"], out["observations"]
     absorbed = out["classical_absorbed"] != 0
@@ -475,5 +489,7 @@ def propagate(
         step=arguments.step,
         participation=seen["participation"],
         momentum_density=np.fft.fftshift(out["momentum_density"], axes=-1),
-        k=np.fft.fftshift(np.asarray(system.grid.k)),
+        k=np.fft.fftshift(np.asarray(system.grid.k)) + system.grid.shift(out["quasimomentum"]),
+        momentum_squared=seen["momentum_squared"],
+        quasimomentum=float(out["quasimomentum"]),
     )

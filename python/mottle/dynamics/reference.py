@@ -24,6 +24,17 @@ conventions exactly, so that the two agree to rounding (the tests hold them to
   multiplies, so ``norm + absorbed_left + absorbed_right = 1`` to rounding.
 * Expectation values are those of the probability still in the box, normalized
   by it; ``<p>`` and ``<T>`` come from ``|fft(psi)|**2``.
+* Time-dependent terms (:class:`mottle.Kicked`, :class:`mottle.Modulated`,
+  :class:`mottle.Switched`): a kick at step boundary ``s`` multiplies by
+  ``exp(-i V / hbar)`` at the start of step ``s`` (after that boundary's
+  potential factor), so kicks fall in ``[0, duration)``; a term ``e(t) V(x)``
+  joins each potential factor with ``-(h/hbar) sum fraction e(member, time)``,
+  the time of factor ``i`` of step ``s`` being ``s h + (b_0 + .. + b_{i-1}) h``
+  and a merged factor being the closing part of step ``s - 1`` plus the
+  opening part of step ``s`` (a switched term is on in steps ``on .. off``).
+* A twisted boundary ``Grid(quasimomentum=beta)`` evolves the periodic part
+  with the kinetic table at ``k + 2 pi beta / L``. The reference takes fixed
+  phases and quasimomenta only (drawn ones are drawn by the core).
 
 The classical fields of the returned :class:`mottle.Run` come from the same
 integrator as the core's (a loop in plain Python): Hamilton's equations in
@@ -102,6 +113,46 @@ class _Propagator:
         self.absorbed_right = 0.0
         self._kinetic_factors: dict[float, np.ndarray] = {}
         self._potential_factors: dict[tuple[float, float], tuple[np.ndarray, np.ndarray, float]] = {}
+        self.shift = 0.0
+        if grid.twisted:
+            self.shift = grid.shift()
+            self.kinetic = np.asarray(system.model.kinetic(np.asarray(grid.k) + self.shift, grid.dx), dtype=float)
+        self.kicks: list[tuple[np.ndarray, int, int]] = []
+        self.terms: list[tuple[np.ndarray, object]] = []
+        self.origin = (0, 0.0)  # main-run step and time at this propagator's first step
+        self.done = 0
+
+    def drive(self, system: System, main_step: float, main_steps: int) -> None:
+        """Take the system's time-dependent terms, with kicks and switches on the main run's steps."""
+        from .drive import KickSteps, SwitchSteps, drive_steps
+
+        grid, model = system.grid, system.model
+        for item in drive_steps(system, main_step, main_steps):
+            if isinstance(item, KickSteps):
+                self.kicks.append((np.exp(-1j * item.term.profile(grid, model) / self.hbar), item.first, item.every))
+            elif isinstance(item, SwitchSteps):
+                on, off = item.on, item.off
+                self.terms.append(
+                    (item.term.profile(grid, model), lambda s, t, on=on, off=off: float(on <= s and (off is None or s < off)))
+                )
+            else:
+                depth, frequency, phase = item.depth, item.frequency, float(item.phase)
+                self.terms.append(
+                    (item.profile(grid, model), lambda s, t, d=depth, w=frequency, p=phase: 1.0 + d * math.cos(w * t + p))
+                )
+
+    def apply_drive(self, psi: np.ndarray, parts) -> np.ndarray:
+        """Multiply by ``exp(-i (h/hbar) sum_j [sum_parts fraction e_j(member, time)] V_j)``."""
+        angle = np.zeros(psi.size)
+        for values, strength in self.terms:
+            angle -= self.step / self.hbar * sum(f * strength(s, t) for f, s, t in parts) * values
+        return psi * np.exp(1j * angle) if self.terms else psi
+
+    def kick(self, psi: np.ndarray, member: int) -> np.ndarray:
+        for factor, first, every in self.kicks:
+            if member >= first and (member - first) % every == 0:
+                psi = psi * factor
+        return psi
 
     def kinetic_factor(self, fraction: float) -> np.ndarray:
         if fraction not in self._kinetic_factors:
@@ -137,17 +188,25 @@ class _Propagator:
     def advance(self, psi: np.ndarray, steps: int) -> np.ndarray:
         """``steps`` whole steps, from a paused state to a paused state."""
         a, b, absorbing = self.a, self.b, self.absorbing
-        m = len(b)
+        m, h = len(b), self.step
         for step in range(steps):
+            member = self.origin[0] + self.done
+            start = self.origin[1] + self.done * h
             for stage in range(m):
                 if stage == 0 and step > 0:
                     # The closing V(a_m h) of the previous step merged with this step's V(a_0 h).
                     psi = self.apply_potential(psi, a[m] + a[0], absorbing[m] + absorbing[0])
+                    psi = self.apply_drive(psi, [(a[m], member - 1, start), (a[0], member, start)])
                 else:
                     psi = self.apply_potential(psi, a[stage], absorbing[stage])
+                    psi = self.apply_drive(psi, [(a[stage], member, start + sum(b[:stage]) * h)])
+                if stage == 0:
+                    psi = self.kick(psi, member)
                 psi = self.apply_kinetic(psi, b[stage])
+            self.done += 1
         if steps > 0:
             psi = self.apply_potential(psi, a[m], absorbing[m])
+            psi = self.apply_drive(psi, [(a[m], self.origin[0] + self.done - 1, self.origin[1] + self.done * h)])
         return psi
 
     def observe(self, psi: np.ndarray, x: np.ndarray, k: np.ndarray, bounds) -> dict:
@@ -162,7 +221,8 @@ class _Propagator:
             "norm": in_box * self.dx,
             "position": float(np.sum(density * x)) / in_box,
             "position_squared": float(np.sum(density * x**2)) / in_box,
-            "momentum": self.hbar * float(np.sum(spectrum * k)) / in_spectrum,
+            "momentum": self.hbar * float(np.sum(spectrum * (k + self.shift))) / in_spectrum,
+            "momentum_squared": self.hbar**2 * float(np.sum(spectrum * (k + self.shift) ** 2)) / in_spectrum,
             "energy": float(np.sum(spectrum * self.kinetic)) / in_spectrum
             + (float(np.sum(density * self.potential)) + interaction) / in_box,
             "absorbed_left": self.absorbed_left,
@@ -325,7 +385,9 @@ def propagate(
     grid = system.grid
     x = grid.start + np.arange(grid.points) * grid.dx
     k = np.asarray(grid.k)
+    _fixed_drive_only(system)
     propagator = _Propagator(system, potential, step, splitting)
+    propagator.drive(system, step, steps)
     psi = packet.values(grid).astype(np.complex128)
     particle = None
     if classical:
@@ -343,6 +405,8 @@ def propagate(
         if offset > 0.0:
             # Between step boundaries: a copy advanced by one shorter step; the run goes on.
             observer = _Propagator(system, potential, offset, splitting)
+            observer.drive(system, step, steps)
+            observer.origin = (pause, pause * step)
             observer.absorbed_left, observer.absorbed_right = (
                 propagator.absorbed_left,
                 propagator.absorbed_right,
@@ -391,8 +455,24 @@ def propagate(
             np.array([o["momentum_density"] for o in seen], dtype=float).reshape(len(seen), grid.points),
             axes=-1,
         ),
-        k=np.fft.fftshift(k),
+        k=np.fft.fftshift(k) + propagator.shift,
+        momentum_squared=column("momentum_squared"),
+        quasimomentum=float(grid.quasimomentum) if grid.twisted else 0.0,
     )
+
+
+def _fixed_drive_only(system: System) -> None:
+    from ..specs.packets import Normal, Uniform
+    from ..specs.potentials import time_dependent_terms
+
+    drawn = [isinstance(system.grid.quasimomentum, (Uniform, Normal))]
+    for term in time_dependent_terms(system.potential):
+        drawn.append(isinstance(getattr(term, "phase", 0.0), (Uniform, Normal)))
+        drawn.append(isinstance(getattr(term.potential, "phase", 0.0), (Uniform, Normal)))
+    if any(drawn):
+        raise InvalidParameterError(
+            "the reference propagator takes fixed phases and quasimomenta only: fix them (the core draws them)"
+        )
 
 
 def hamiltonian_matrix(system: System, seed: int = 0, index: int = 0) -> np.ndarray:

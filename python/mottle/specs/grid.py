@@ -31,11 +31,20 @@ class Grid:
     wavenumbers in FFT order, ``k = 2*pi*fftfreq(points, dx)``. Any
     ``points >= 16`` works; sizes with small prime factors (powers of two) are
     fastest. In the lattice model the points are the sites, spacing ``dx``.
+
+    ``quasimomentum = beta`` in ``[0, 1)`` twists the boundary,
+    ``psi(x + length) = exp(2 pi i beta) psi(x)``: the wavenumbers become
+    ``k + 2 pi beta / length`` (:attr:`momenta` in units of ``hbar``), and a run's
+    wavefunction (``Run.psi``, snapshots) is the periodic part
+    ``u(x) = exp(-2 pi i beta x / length) psi(x)``, which is what lives on the
+    periodic grid (``|u| = |psi|``). ``beta`` may be drawn per realization,
+    ``quasimomentum=mo.Uniform(0, 1)``, keyed by (seed, index) like disorder.
     """
 
     points: int
     length: float
     center: float = 0.0
+    quasimomentum: float = 0.0
 
     def __post_init__(self) -> None:
         points = _checks.integer("points", self.points, minimum=16)
@@ -51,6 +60,7 @@ class Grid:
         object.__setattr__(self, "points", points)
         object.__setattr__(self, "length", length)
         object.__setattr__(self, "center", center)
+        object.__setattr__(self, "quasimomentum", _quasimomentum(self.quasimomentum))
 
     @property
     def dx(self) -> float:
@@ -82,9 +92,41 @@ class Grid:
         return k
 
     @property
+    def twisted(self) -> bool:
+        """Whether the boundary is twisted (a nonzero or drawn quasimomentum)."""
+        return not (isinstance(self.quasimomentum, float) and self.quasimomentum == 0.0)
+
+    def shift(self, beta: float | None = None) -> float:
+        """``2 pi beta / length``, the twist's shift of the wavenumbers (``beta`` by default the grid's
+        fixed quasimomentum; a drawn one must be given)."""
+        if beta is None:
+            if not isinstance(self.quasimomentum, float):
+                raise InvalidParameterError("a drawn quasimomentum has no single shift: pass beta")
+            beta = self.quasimomentum
+        return 2.0 * np.pi * float(beta) / self.length
+
+    @property
     def k_max(self) -> float:
         """The largest wavenumber the grid represents, ``pi / dx``."""
         return np.pi / self.dx
 
     def contains(self, position: float) -> bool:
         return self.start <= position < self.stop
+
+
+def _quasimomentum(value):
+    """A fixed ``beta`` in ``[0, 1)`` or a :class:`~mottle.Uniform` draw inside ``[0, 1]``."""
+    from .packets import Normal, Uniform
+
+    if isinstance(value, Uniform):
+        if value.low < 0.0 or value.high > 1.0:
+            raise InvalidParameterError(
+                f"quasimomentum {value!r} must be drawn inside [0, 1]: use e.g. mottle.Uniform(0, 1)"
+            )
+        return value
+    if isinstance(value, Normal):
+        raise InvalidParameterError(f"quasimomentum {value!r}: use a number in [0, 1) or mottle.Uniform(0, 1)")
+    beta = _checks.real("quasimomentum", value)
+    if not 0.0 <= beta < 1.0:
+        raise InvalidParameterError(f"quasimomentum {beta} must lie in [0, 1) (beta and beta + 1 are the same)")
+    return beta

@@ -8,6 +8,7 @@ makes the transmission converge smoothly as the grid is refined.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -135,3 +136,200 @@ class Tabulated(Potential):
             raise InvalidParameterError(
                 f"Tabulated values have shape {self.table.shape}; the grid needs ({grid.points},)"
             )
+
+
+def _phase(name: str, value):
+    """A phase: a number, or a :class:`~mottle.Uniform` / :class:`~mottle.Normal` draw per realization."""
+    from .packets import Normal, Uniform
+
+    if isinstance(value, (Uniform, Normal)):
+        return value
+    return _checks.real(name, value)
+
+
+def _is_drawn(value) -> bool:
+    from .packets import Normal, Uniform
+
+    return isinstance(value, (Uniform, Normal))
+
+
+@dataclass(frozen=True)
+class Cosine(Potential):
+    """``amplitude cos(wavenumber x + phase)``: a standing wave, the kicked rotor's kick.
+
+    ``phase`` may be drawn per realization (``phase=mo.Uniform(0, 2*math.pi)``) when
+    the cosine is the profile of a time-dependent term (:class:`Kicked`,
+    :class:`Modulated`, :class:`Switched`); a static cosine takes a number.
+    On a periodic grid the cosine is periodic only when ``wavenumber * length``
+    is a multiple of ``2 pi``; otherwise it jumps where the box wraps.
+    """
+
+    kind = "cosine"
+
+    amplitude: float
+    wavenumber: float
+    phase: float = 0.0
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "amplitude", _checks.real("amplitude", self.amplitude))
+        object.__setattr__(self, "wavenumber", _checks.real("wavenumber", self.wavenumber))
+        object.__setattr__(self, "phase", _phase("phase", self.phase))
+
+    def values(self, grid, model):
+        if _is_drawn(self.phase):
+            raise InvalidParameterError(
+                f"Cosine phase {self.phase!r} is drawn per realization: use a number, or make the cosine "
+                "the profile of Kicked, Modulated or Switched"
+            )
+        return self.amplitude * np.cos(self.wavenumber * grid.x + float(self.phase))
+
+    def validate(self, grid):
+        if _is_drawn(self.phase):
+            self.values(grid, None)
+
+    def profile_request(self, grid, model):
+        """The core's description of this profile (a drawn phase is drawn there, per realization)."""
+        from .. import _requests
+
+        return _requests.cosine_profile(self.amplitude, self.wavenumber, self.phase)
+
+
+class TimeDependent(Potential):
+    """Base of the time-dependent terms ``e(t) V(x)`` (:class:`Kicked`, :class:`Modulated`,
+    :class:`Switched`); they sum with the static potentials (``+``).
+
+    :meth:`values` is a term's static part, zero: ``V(x)`` is :meth:`profile`. The wrapped
+    ``potential`` must be static (a :class:`Cosine`, :class:`Harmonic`, ... or a sum of them).
+    """
+
+    potential: Potential
+
+    def _check_potential(self) -> None:
+        if not isinstance(self.potential, Potential) or any(
+            isinstance(term, TimeDependent) for term in _terms(self.potential)
+        ):
+            raise InvalidTypeError(
+                f"{type(self).__name__} needs a static mottle potential (Cosine, Harmonic, Barrier, Tabulated "
+                f"or a sum), got {type(self.potential).__name__}"
+            )
+
+    def values(self, grid, model):
+        return np.zeros(grid.points)
+
+    def profile(self, grid, model) -> np.ndarray:
+        """``V(x)`` at the grid points (a drawn cosine phase is taken as its mean here)."""
+        return np.asarray(
+            sum(
+                (_static_values(term, grid, model) for term in _terms(self.potential)),
+                np.zeros(grid.points),
+            ),
+            dtype=float,
+        )
+
+    def profile_request(self, grid, model):
+        """The core's description of ``V(x)``: a drawn cosine by its parameters, else a table."""
+        from .. import _requests
+
+        if isinstance(self.potential, Cosine):
+            return self.potential.profile_request(grid, model)
+        if any(isinstance(t, Cosine) and _is_drawn(t.phase) for t in _terms(self.potential)):
+            raise InvalidParameterError(
+                f"{type(self).__name__}: a drawn Cosine phase works for a lone Cosine profile; "
+                "give each drawn cosine its own time-dependent term"
+            )
+        return _requests.table_profile(self.profile(grid, model))
+
+    def validate(self, grid):
+        for term in _terms(self.potential):
+            if isinstance(term, Cosine):
+                continue
+            term.validate(grid)
+
+
+def _static_values(term: Potential, grid, model) -> np.ndarray:
+    if isinstance(term, Cosine) and _is_drawn(term.phase):
+        mean = term.phase.low + 0.5 * (term.phase.high - term.phase.low) if hasattr(term.phase, "low") else 0.0
+        return term.amplitude * np.cos(term.wavenumber * grid.x + mean)
+    return term.values(grid, model)
+
+
+@dataclass(frozen=True)
+class Kicked(TimeDependent):
+    """``V(x) sum_n delta(t - t_n)`` with ``t_n = start + n period`` inside ``[0, duration)``.
+
+    Each kick is applied exactly, as ``exp(-i V / hbar)``, between two kinetic
+    factors, for every splitting. A kick at ``t = duration`` is not included, so
+    with ``start = 0`` a run of duration ``n period`` is ``n`` times the map
+    ``psi -> F K psi`` (the kick ``K``, then a free period ``F``); a snapshot at a
+    kick's time sees the state just before that kick. The step must land on the
+    kicks: ``period`` and ``start`` must be whole numbers of the run's step
+    (a run that does not is refused, naming a step that does).
+    """
+
+    potential: Potential
+    period: float
+    start: float = 0.0
+
+    def __post_init__(self) -> None:
+        self._check_potential()
+        object.__setattr__(self, "period", _checks.positive("period", self.period))
+        start = _checks.real("start", self.start)
+        if start < 0.0:
+            raise InvalidParameterError(f"Kicked start={start} must be >= 0")
+        object.__setattr__(self, "start", start)
+
+
+@dataclass(frozen=True)
+class Modulated(TimeDependent):
+    """``V(x) (1 + depth cos(frequency t + phase))``.
+
+    Each potential factor of the splitting evaluates it at its own time (the
+    clock advances with the kinetic factors), so Strang stays order 2 and the
+    4th-order schemes order 4 (``tests/test_timedep.py`` measures both).
+    ``phase`` may be drawn per realization (``mo.Uniform(0, 2*math.pi)``).
+    """
+
+    potential: Potential
+    depth: float
+    frequency: float
+    phase: float = 0.0
+
+    def __post_init__(self) -> None:
+        self._check_potential()
+        object.__setattr__(self, "depth", _checks.real("depth", self.depth))
+        object.__setattr__(self, "frequency", _checks.real("frequency", self.frequency))
+        object.__setattr__(self, "phase", _phase("phase", self.phase))
+
+
+@dataclass(frozen=True)
+class Switched(TimeDependent):
+    """``V(x)`` only while ``on <= t < off`` (a quench; ``off = math.inf``: never off).
+
+    ``on`` and ``off`` must fall on step boundaries: the core switches by whole step counts
+    ``round(on / step)``, never by accumulated time (a run whose step does not land on them is
+    refused, naming a step that does). ``off`` past the run's end means never off.
+    """
+
+    potential: Potential
+    on: float = 0.0
+    off: float = math.inf
+
+    def __post_init__(self) -> None:
+        self._check_potential()
+        on = _checks.real("on", self.on)
+        if on < 0.0:
+            raise InvalidParameterError(f"Switched on={on} must be >= 0")
+        off = self.off
+        if not (isinstance(off, (int, float)) and not isinstance(off, bool) and off == math.inf):
+            off = _checks.real("off", off)
+        if off < on:
+            raise InvalidParameterError(f"Switched off={off} is before on={on}: use off >= on")
+        object.__setattr__(self, "on", on)
+        object.__setattr__(self, "off", float(off))
+
+
+def time_dependent_terms(potential: Potential | None) -> tuple[TimeDependent, ...]:
+    """The time-dependent terms of a potential (or a sum), in order."""
+    if potential is None:
+        return ()
+    return tuple(term for term in _terms(potential) if isinstance(term, TimeDependent))

@@ -219,6 +219,7 @@ fn propagate_one<'py>(
     let points = output.psi.len();
     let dict = PyDict::new(py);
     dict.set_item("psi", output.psi.into_pyarray(py))?;
+    dict.set_item("quasimomentum", output.quasimomentum)?;
     let snapshot_count = output.snapshots.len();
     let flat: Vec<Complex64> = output.snapshots.into_iter().flatten().collect();
     dict.set_item("snapshots", table(py, flat, snapshot_count, points)?)?;
