@@ -7,7 +7,7 @@ from .analysis.fits import (
     fit_log_transmission,
     log_density_tails,
 )
-from .analysis.momentum import MomentumPeaks, coherent_peaks
+from .analysis.momentum import MomentumPeaks, coherent_peaks, momentum_tails
 from .analysis.statistics import Stat
 from .dynamics import reference
 from .dynamics.classical import ClassicalEnsemble, QuantumClassical, classical_ensemble, quantum_classical
@@ -113,6 +113,7 @@ __all__ += [
     "fit_log_transmission",
     "log_density_tails",
     "lyapunov",
+    "momentum_tails",
     "quantum_classical",
     "transmission_spectrum",
 ]

@@ -237,7 +237,12 @@ def table_profile(values) -> _Profile:
 
 def cosine_profile(amplitude: float, wavenumber: float, phase: object) -> _Profile:
     """``amplitude cos(wavenumber x + phase)``, the phase fixed or drawn per realization."""
-    return {"kind": "cosine", "amplitude": float(amplitude), "wavenumber": float(wavenumber), "phase": draw(phase)}
+    return {
+        "kind": "cosine",
+        "amplitude": float(amplitude),
+        "wavenumber": float(wavenumber),
+        "phase": draw(phase),
+    }
 
 
 def drive(system: System, step: float, steps: int) -> _Drive | None:

@@ -54,6 +54,8 @@ pub struct Chunk {
     pub norm: Vec<f64>,
     pub absorbed_left: Vec<f64>,
     pub absorbed_right: Vec<f64>,
+    /// The quasimomentum `beta` of each realization (0 without a twist).
+    pub quasimomentum: Vec<f64>,
     /// `count x snapshots`, realization-major.
     pub position: Vec<f64>,
     pub position_squared: Vec<f64>,
@@ -194,11 +196,13 @@ fn run_chunk<T: Real>(
         potential.copy_from_slice(&spec.static_potential);
         realizer.add_to(spec.seed, index as u64, &mut potential)?;
         stepper.prepare(&potential)?;
-        stepper.set_drive(
-            &spec
-                .drive
-                .realize(n, grid.dx, grid.start, spec.seed, index as u64),
-        )?;
+        let drive = spec
+            .drive
+            .realize(n, grid.dx, grid.start, spec.seed, index as u64);
+        stepper.set_drive(&drive)?;
+        chunk
+            .quasimomentum
+            .push(drive.twist.as_ref().map_or(0.0, |twist| twist.0));
         spec.packets
             .fill(grid, spec.seed, index as u64, &mut initial)?;
         psi.iter_mut()

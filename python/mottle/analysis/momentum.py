@@ -125,3 +125,41 @@ def coherent_peaks(result, wavenumber: float, background, snapshot: int = -1, wi
         forward_background=forward[1],
         forward_position=forward[2],
     )
+
+
+def momentum_tails(result, window, snapshot: int = -1):
+    """The localization length in momentum from the tails of an ensemble's mean momentum distribution.
+
+    Fits ``ln <|phi|**2>`` against ``|n|``, both sides pooled, for ``window[0] <= |n| <= window[1]``,
+    where ``n = k L / (2 pi)`` counts momentum states (``p = hbar n`` on the kicked rotor's grid of
+    length ``2 pi``; with a twist ``n + beta``), by :func:`mottle.analysis.fits.line_fit`. Convention:
+    ``<|phi_n|**2> ~ exp(-2 |n| / l)``, so the returned :class:`~mottle.LocalizationFit`'s
+    ``localization_length`` is ``l`` in momentum states. The mean distribution's tails are about
+    twice as long as the Floquet states' (Shepelyansky, Physica D 28, 103 (1987)): compare with
+    ``D / hbar**2`` for ``l`` of the mean, ``D / (2 hbar**2)`` for the eigenstates. Points at zero
+    density are left out; check the fit on two windows (the tails must be straight in between).
+    """
+    from .fits import line_fit
+
+    momentum = np.asarray(getattr(result, "momentum", None), dtype=float)
+    if momentum.ndim != 2:
+        raise InvalidTypeError(f"momentum_tails needs an EnsembleResult, got {type(result).__name__}")
+    try:
+        low, high = (float(w) for w in window)
+    except (TypeError, ValueError):
+        raise InvalidTypeError(f"window must be a pair (low, high) of |n|, got {window!r}") from None
+    if not 0.0 <= low < high:
+        raise InvalidParameterError(f"window ({low:g}, {high:g}) must have 0 <= low < high")
+    snapshot = _checks.integer("snapshot", snapshot, minimum=-momentum.shape[0])
+    if snapshot >= momentum.shape[0]:
+        raise InvalidParameterError(f"snapshot {snapshot} is past the last of {momentum.shape[0]}")
+    length = np.asarray(result.x).size * float(np.asarray(result.x)[1] - np.asarray(result.x)[0])
+    n = np.abs(np.asarray(result.k, dtype=float)) * length / (2.0 * np.pi)
+    density = momentum[snapshot]
+    chosen = (n >= low) & (n <= high) & (density > 0.0)
+    if np.count_nonzero(chosen) < 3:
+        raise InvalidParameterError(
+            f"window ({low:g}, {high:g}) holds {np.count_nonzero(chosen)} momentum states with density > 0; "
+            "it needs at least 3"
+        )
+    return line_fit(n[chosen], np.log(density[chosen]))

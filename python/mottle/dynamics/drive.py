@@ -52,10 +52,16 @@ def drive_steps(system, step: float, steps: int) -> list:
     for term in time_dependent_terms(system.potential):
         if isinstance(term, Kicked):
             every = _whole_steps("Kicked period", term.period, step, term.period)
-            hint = math.gcd(*(round(t * 1e9) for t in (term.period, term.start))) / 1e9 if term.start else term.period
+            hint = (
+                math.gcd(*(round(t * 1e9) for t in (term.period, term.start))) / 1e9
+                if term.start
+                else term.period
+            )
             first = _whole_steps("Kicked start", term.start, step, hint) if term.start else 0
             if every < 1:
-                raise InvalidParameterError(f"Kicked period {term.period:g} is shorter than the step {step:g}")
+                raise InvalidParameterError(
+                    f"Kicked period {term.period:g} is shorter than the step {step:g}"
+                )
             out.append(KickSteps(term, first, every))
         elif isinstance(term, Switched):
             on = steps if term.on >= duration else _whole_steps("Switched on", term.on, step, term.on)

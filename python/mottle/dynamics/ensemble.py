@@ -31,7 +31,7 @@ if TYPE_CHECKING:
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""
 
-_SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right")
+_SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right", "quasimomentum")
 _PER_SNAPSHOT = ("position", "position_squared", "participation", "mean_momentum", "momentum_squared")
 _PER_MODE = ("spectrum", "spectrum_settling")
 _MAX_MODES = limits.SPECTRUM_MODES

@@ -116,7 +116,9 @@ class _Propagator:
         self.shift = 0.0
         if grid.twisted:
             self.shift = grid.shift()
-            self.kinetic = np.asarray(system.model.kinetic(np.asarray(grid.k) + self.shift, grid.dx), dtype=float)
+            self.kinetic = np.asarray(
+                system.model.kinetic(np.asarray(grid.k) + self.shift, grid.dx), dtype=float
+            )
         self.kicks: list[tuple[np.ndarray, int, int]] = []
         self.terms: list[tuple[np.ndarray, object]] = []
         self.origin = (0, 0.0)  # main-run step and time at this propagator's first step
@@ -129,16 +131,24 @@ class _Propagator:
         grid, model = system.grid, system.model
         for item in drive_steps(system, main_step, main_steps):
             if isinstance(item, KickSteps):
-                self.kicks.append((np.exp(-1j * item.term.profile(grid, model) / self.hbar), item.first, item.every))
+                self.kicks.append(
+                    (np.exp(-1j * item.term.profile(grid, model) / self.hbar), item.first, item.every)
+                )
             elif isinstance(item, SwitchSteps):
                 on, off = item.on, item.off
                 self.terms.append(
-                    (item.term.profile(grid, model), lambda s, t, on=on, off=off: float(on <= s and (off is None or s < off)))
+                    (
+                        item.term.profile(grid, model),
+                        lambda s, t, on=on, off=off: float(on <= s and (off is None or s < off)),
+                    )
                 )
             else:
                 depth, frequency, phase = item.depth, item.frequency, float(item.phase)
                 self.terms.append(
-                    (item.profile(grid, model), lambda s, t, d=depth, w=frequency, p=phase: 1.0 + d * math.cos(w * t + p))
+                    (
+                        item.profile(grid, model),
+                        lambda s, t, d=depth, w=frequency, p=phase: 1.0 + d * math.cos(w * t + p),
+                    )
                 )
 
     def apply_drive(self, psi: np.ndarray, parts) -> np.ndarray:
@@ -206,7 +216,9 @@ class _Propagator:
             self.done += 1
         if steps > 0:
             psi = self.apply_potential(psi, a[m], absorbing[m])
-            psi = self.apply_drive(psi, [(a[m], self.origin[0] + self.done - 1, self.origin[1] + self.done * h)])
+            psi = self.apply_drive(
+                psi, [(a[m], self.origin[0] + self.done - 1, self.origin[1] + self.done * h)]
+            )
         return psi
 
     def observe(self, psi: np.ndarray, x: np.ndarray, k: np.ndarray, bounds) -> dict:

@@ -125,8 +125,12 @@ def _quasimomentum(value):
             )
         return value
     if isinstance(value, Normal):
-        raise InvalidParameterError(f"quasimomentum {value!r}: use a number in [0, 1) or mottle.Uniform(0, 1)")
+        raise InvalidParameterError(
+            f"quasimomentum {value!r}: use a number in [0, 1) or mottle.Uniform(0, 1)"
+        )
     beta = _checks.real("quasimomentum", value)
     if not 0.0 <= beta < 1.0:
-        raise InvalidParameterError(f"quasimomentum {beta} must lie in [0, 1) (beta and beta + 1 are the same)")
+        raise InvalidParameterError(
+            f"quasimomentum {beta} must lie in [0, 1) (beta and beta + 1 are the same)"
+        )
     return beta

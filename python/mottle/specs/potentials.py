@@ -248,7 +248,9 @@ class TimeDependent(Potential):
 
 def _static_values(term: Potential, grid, model) -> np.ndarray:
     if isinstance(term, Cosine) and _is_drawn(term.phase):
-        mean = term.phase.low + 0.5 * (term.phase.high - term.phase.low) if hasattr(term.phase, "low") else 0.0
+        mean = (
+            term.phase.low + 0.5 * (term.phase.high - term.phase.low) if hasattr(term.phase, "low") else 0.0
+        )
         return term.amplitude * np.cos(term.wavenumber * grid.x + mean)
     return term.values(grid, model)
 

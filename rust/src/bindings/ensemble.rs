@@ -63,6 +63,7 @@ fn chunk_dict<'py>(
         ("norm", chunk.norm),
         ("absorbed_left", chunk.absorbed_left),
         ("absorbed_right", chunk.absorbed_right),
+        ("quasimomentum", chunk.quasimomentum),
     ] {
         dict.set_item(name, values.into_pyarray(py))?;
     }
