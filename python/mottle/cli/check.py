@@ -221,6 +221,30 @@ def _coherent_state() -> Outcome:
 
 
 @case(
+    "kicked-rotor-resonance",
+    "<p^2> of the kicked rotor at hbar_eff = 4 pi, K = 2, after 10 kicks from p = 0: K^2 t^2 / 2 = 200",
+    "Izrailev & Shepelyansky, Theor. Math. Phys. 43, 553 (1980): quantum resonance",
+)
+def _kicked_rotor_resonance() -> Outcome:
+    import warnings
+
+    import mottle as mo
+
+    kick, kicks, points = 2.0, 10, 256
+    system = mo.System(
+        mo.Grid(points, 2 * math.pi),
+        mo.Continuum(hbar=4 * math.pi),
+        potential=mo.Kicked(mo.Cosine(kick, 1.0), period=1.0),
+    )
+    start = mo.Wavefunction(np.full(points, 1 / math.sqrt(2 * math.pi), dtype=complex))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", mo.UnderResolvedWarning)  # plane waves fill the box by design
+        run = mo.propagate(system, start, float(kicks), 1.0, snapshots=(float(kicks),))
+    assert run.momentum_squared is not None
+    return Outcome(float(run.momentum_squared[-1]), kick**2 * kicks**2 / 2, 1e-10, relative=True)
+
+
+@case(
     "absorber-reflection",
     "probability a layer of width 20 sends back from a packet at twice its design energy",
     "Manolopoulos, J. Chem. Phys. 117, 9552 (2002), eq. (2.13): reflection < 1e-3 for E >= 2 E_min",

@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import copy
 import math
+from collections.abc import Callable
 
 import numpy as np
 
@@ -93,6 +94,24 @@ def coefficients(splitting: str) -> tuple[list[float], list[float]]:
     return SPLITTING_COEFFICIENTS[splitting]()
 
 
+def _switch(on: int, off: int | None) -> Callable[[int, float], float]:
+    """``e = 1`` during the main run's steps ``on .. off``, else 0."""
+
+    def strength(member: int, time: float) -> float:
+        return 1.0 if on <= member and (off is None or member < off) else 0.0
+
+    return strength
+
+
+def _modulation(depth: float, frequency: float, phase: float) -> Callable[[int, float], float]:
+    """``e = 1 + depth cos(frequency t + phase)``."""
+
+    def strength(member: int, time: float) -> float:
+        return 1.0 + depth * math.cos(frequency * time + phase)
+
+    return strength
+
+
 class _Propagator:
     """The state of one run: wavefunction, tables, and the probability absorbed so far."""
 
@@ -120,7 +139,7 @@ class _Propagator:
                 system.model.kinetic(np.asarray(grid.k) + self.shift, grid.dx), dtype=float
             )
         self.kicks: list[tuple[np.ndarray, int, int]] = []
-        self.terms: list[tuple[np.ndarray, object]] = []
+        self.terms: list[tuple[np.ndarray, Callable[[int, float], float]]] = []
         self.origin = (0, 0.0)  # main-run step and time at this propagator's first step
         self.done = 0
 
@@ -135,21 +154,10 @@ class _Propagator:
                     (np.exp(-1j * item.term.profile(grid, model) / self.hbar), item.first, item.every)
                 )
             elif isinstance(item, SwitchSteps):
-                on, off = item.on, item.off
-                self.terms.append(
-                    (
-                        item.term.profile(grid, model),
-                        lambda s, t, on=on, off=off: float(on <= s and (off is None or s < off)),
-                    )
-                )
+                self.terms.append((item.term.profile(grid, model), _switch(item.on, item.off)))
             else:
-                depth, frequency, phase = item.depth, item.frequency, float(item.phase)
-                self.terms.append(
-                    (
-                        item.profile(grid, model),
-                        lambda s, t, d=depth, w=frequency, p=phase: 1.0 + d * math.cos(w * t + p),
-                    )
-                )
+                envelope = _modulation(item.depth, item.frequency, float(item.phase))
+                self.terms.append((item.profile(grid, model), envelope))
 
     def apply_drive(self, psi: np.ndarray, parts) -> np.ndarray:
         """Multiply by ``exp(-i (h/hbar) sum_j [sum_parts fraction e_j(member, time)] V_j)``."""
@@ -483,7 +491,7 @@ def _fixed_drive_only(system: System) -> None:
         drawn.append(isinstance(getattr(term.potential, "phase", 0.0), (Uniform, Normal)))
     if any(drawn):
         raise InvalidParameterError(
-            "the reference propagator takes fixed phases and quasimomenta only: fix them (the core draws them)"
+            "the reference propagator takes fixed phases and quasimomenta only: fix them (the core draws)"
         )
 
 

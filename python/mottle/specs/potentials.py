@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -209,8 +210,8 @@ class TimeDependent(Potential):
             isinstance(term, TimeDependent) for term in _terms(self.potential)
         ):
             raise InvalidTypeError(
-                f"{type(self).__name__} needs a static mottle potential (Cosine, Harmonic, Barrier, Tabulated "
-                f"or a sum), got {type(self.potential).__name__}"
+                f"{type(self).__name__} needs a static mottle potential (Cosine, Harmonic, Barrier, Tabulated"
+                f" or a sum), got {type(self.potential).__name__}"
             )
 
     def values(self, grid, model):
@@ -248,9 +249,8 @@ class TimeDependent(Potential):
 
 def _static_values(term: Potential, grid, model) -> np.ndarray:
     if isinstance(term, Cosine) and _is_drawn(term.phase):
-        mean = (
-            term.phase.low + 0.5 * (term.phase.high - term.phase.low) if hasattr(term.phase, "low") else 0.0
-        )
+        phase: Any = term.phase
+        mean = phase.mean if hasattr(phase, "mean") else 0.5 * (phase.low + phase.high)
         return term.amplitude * np.cos(term.wavenumber * grid.x + mean)
     return term.values(grid, model)
 
