@@ -314,3 +314,25 @@ snapshots = [2.0]
     assert system.potential == mo.Cosine(0.5, 1.0)
     result = mo.ensemble(system, packet, **{k: v for k, v in arguments.items()})
     assert result.count == 2 and abs(result.norm.mean - 1.0) < 1e-12
+
+
+def test_the_quantum_rotor_follows_the_standard_map_until_it_localizes():
+    # Chirikov's standard map is the classical kicked rotor. After one kick <p**2> = K**2 <sin**2> =
+    # K**2 / 2 (exact in expectation); Casati, Chirikov, Ford & Izrailev (1979): the quantum <p**2>
+    # follows the classical diffusion over the first kicks and stops while the classical one goes on.
+    kick = 5.0
+    classical = mo.standard_map(kick, 400, 100_000, seed=2)
+    first = classical.momentum_squared[0]
+    assert abs(first.mean - kick**2 / 2) < 4 * first.stderr
+    system = rotor(1024, 1.0, kick, quasimomentum=mo.Uniform(0.0, 1.0))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", mo.UnderResolvedWarning)
+        quantum = mo.ensemble(system, zero_momentum(1024), 400.0, 1.0, 32, snapshots=[5.0, 400.0], threads=2)
+        single = mo.propagate(system, zero_momentum(1024), 2.0, 1.0)
+    assert single.classical_position is None  # no classical trajectory beside a driven run
+    spread = [stat.mean for stat in quantum.momentum_squared]
+    early = spread[0] / classical.momentum_squared[4].mean
+    assert 0.75 < early < 1.25, early
+    assert spread[1] < 0.2 * classical.momentum_squared[399].mean
+    with pytest.raises(mo.InvalidParameterError, match="standard_map"):
+        mo.classical_ensemble(system, mo.GaussianPacket(0.0, 0.0, 0.5), 2.0, 1.0, 10)

@@ -10,7 +10,14 @@ from .analysis.fits import (
 from .analysis.momentum import MomentumPeaks, coherent_peaks, momentum_tails
 from .analysis.statistics import Stat
 from .dynamics import reference
-from .dynamics.classical import ClassicalEnsemble, QuantumClassical, classical_ensemble, quantum_classical
+from .dynamics.classical import (
+    ClassicalEnsemble,
+    QuantumClassical,
+    StandardMap,
+    classical_ensemble,
+    quantum_classical,
+    standard_map,
+)
 from .dynamics.ensemble import (
     CHUNK,
     EnsemblePartial,
@@ -108,7 +115,9 @@ __all__ += [
     "TransmissionSpectrum",
     "bootstrap_interval",
     "born_lyapunov",
+    "StandardMap",
     "classical_ensemble",
+    "standard_map",
     "coherent_peaks",
     "fit_log_transmission",
     "log_density_tails",

@@ -117,6 +117,13 @@ def classical_ensemble(
     """
 
     check_system(system)
+    from .drive import is_driven
+
+    if is_driven(system):
+        raise InvalidParameterError(
+            "classical_ensemble moves particles in a static potential on a periodic grid: for the kicked "
+            "rotor use mottle.standard_map; other time-dependent terms and twists have no classical run yet"
+        )
     if not isinstance(packet, GaussianPacket):
         raise InvalidTypeError(
             f"packet must be a mottle.GaussianPacket (its Wigner distribution is a Gaussian), "
@@ -217,3 +224,44 @@ def quantum_classical(
         system, packet, duration, step, seed=seed, index=index, snapshots=snapshots, detector=detector
     )
     return QuantumClassical(quantum=quantum, classical=classical)
+
+
+@dataclass(frozen=True, eq=False)
+class StandardMap:
+    """Chirikov's standard map, the classical kicked rotor: ``p' = p + K sin(theta)``,
+    ``theta' = theta + p'`` per kick (period 1, mass 1; exact, no step).
+
+    ``kicks`` are 1, 2, ...; ``momentum_squared[t]`` is ``<p**2>`` after ``kicks[t]`` kicks, a
+    :class:`Stat` over the particles, the counterpart of the quantum rotor's
+    ``EnsembleResult.momentum_squared`` for ``H = p**2/2 + K cos(theta) sum_n delta(t - n)`` (whose
+    kick is ``p -> p - dV/dtheta = p + K sin(theta)``); ``momentum`` the particles after the last kick.
+    """
+
+    kicks: np.ndarray
+    momentum_squared: list
+    momentum: np.ndarray
+
+
+def standard_map(
+    kick: float, kicks: int, particles: int, seed: int = 0, momentum: float = 0.0
+) -> StandardMap:
+    """Iterate the standard map from ``theta`` uniform on ``[0, 2 pi)`` and ``p = momentum``.
+
+    The angles are drawn from ``(seed, particles)`` alone (numpy's PCG64 keyed by both).
+    """
+    kick = _checks.real("kick", kick)
+    kicks = _checks.integer("kicks", kicks, minimum=1)
+    particles = _checks.integer("particles", particles, minimum=2)
+    seed = _checks.integer("seed", seed, minimum=0)
+    momentum = _checks.real("momentum", momentum)
+    if 16 * particles > _memory_bytes():
+        raise InvalidParameterError(f"particles={particles} do not fit in memory")
+    rng = np.random.default_rng([seed, particles])
+    theta = rng.uniform(0.0, 2.0 * np.pi, particles)
+    p = np.full(particles, momentum)
+    spread = []
+    for _ in range(kicks):
+        p += kick * np.sin(theta)
+        theta = np.mod(theta + p, 2.0 * np.pi)
+        spread.append(Stat.of(p * p))
+    return StandardMap(kicks=np.arange(1, kicks + 1), momentum_squared=spread, momentum=p)

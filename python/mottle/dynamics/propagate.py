@@ -45,7 +45,9 @@ class Run:
     ``psi`` and ``snapshots`` hold the periodic part ``exp(-2 pi i beta x / L) psi``, ``k`` are the
     twisted wavenumbers ``2 pi (n + beta) / L``, ``quasimomentum`` is the ``beta`` of this run (drawn
     for ``(seed, index)`` when the grid draws it) and ``momentum`` and ``momentum_squared`` are at
-    ``hbar k``. ``energy`` counts the static potential only (not the time-dependent terms).
+    ``hbar k``. ``energy`` counts the static potential only (not the time-dependent terms), and a
+    run with time-dependent terms or a twist has no classical trajectory (``None``; see
+    :func:`mottle.standard_map` for the kicked rotor's).
     """
 
     times: np.ndarray
@@ -450,6 +452,10 @@ def propagate(
     )
     bounds = arguments.bounds
     psi0 = packet.values(system.grid).astype(np.complex128)
+    from .drive import is_driven
+
+    # The classical trajectory moves in the static potential on a periodic grid only.
+    classical = classical and not is_driven(system)
     start = initial_phase_space(system, packet) if classical else None
     drive = _requests.drive(system, arguments.step, arguments.steps)
     out = _core.propagate_one(

@@ -410,6 +410,9 @@ def propagate(
     propagator.drive(system, step, steps)
     psi = packet.values(grid).astype(np.complex128)
     particle = None
+    from .drive import is_driven
+
+    classical = classical and not is_driven(system)
     if classical:
         particle = _Particle(system, potential, *initial_phase_space(system, packet))
         substeps = particle.substeps(step)
