@@ -132,7 +132,9 @@ fn check_draw(name: &str, draw: &Draw) -> Result<(), CoreError> {
     if finite {
         Ok(())
     } else {
-        invalid(format!("{name} draw {draw:?} must be finite (low <= high, std >= 0)"))
+        invalid(format!(
+            "{name} draw {draw:?} must be finite (low <= high, std >= 0)"
+        ))
     }
 }
 
@@ -239,14 +241,7 @@ impl Drive {
     }
 
     /// The drive of realization `index` of `seed` on the grid `(points, dx, start)`.
-    pub fn realize(
-        &self,
-        points: usize,
-        dx: f64,
-        start: f64,
-        seed: u64,
-        index: u64,
-    ) -> Realized {
+    pub fn realize(&self, points: usize, dx: f64, start: f64, seed: u64, index: u64) -> Realized {
         let mut stream = Stream::new(seed, DRIVE_PURPOSE, index);
         let twist = self.twist.map(|(draw, dispersion)| {
             // A uniform draw on [0, 1) stays below 1.

@@ -92,11 +92,7 @@ pub fn observe<T: Real>(
     stepper.transform(psi, buffer);
     let (mut spectral, mut momentum, mut kinetic, mut squared) = (0.0, 0.0, 0.0, 0.0);
     let shift = stepper.wavenumber_shift();
-    for ((&z, &k), &energy) in buffer
-        .iter()
-        .zip(wavenumbers)
-        .zip(stepper.kinetic_table())
-    {
+    for ((&z, &k), &energy) in buffer.iter().zip(wavenumbers).zip(stepper.kinetic_table()) {
         let weight = density(z);
         let k = k + shift;
         spectral += weight;

@@ -125,8 +125,7 @@ impl<T: Real> Shared<T> {
     pub fn new(setup: Setup) -> Result<Self, CoreError> {
         setup.validate()?;
         let schedule = Schedule::new(&setup.splitting);
-        let kinetic_factors =
-            kinetic_factors(&setup, &schedule.kinetic_fractions, &setup.kinetic);
+        let kinetic_factors = kinetic_factors(&setup, &schedule.kinetic_fractions, &setup.kinetic);
         let plans = Plans::new(setup.points);
         Ok(Shared {
             setup,
@@ -207,7 +206,11 @@ struct Twist<T: Real> {
     factors: Vec<Vec<Complex<T>>>,
 }
 
-fn kinetic_factors<T: Real>(setup: &Setup, fractions: &[f64], table: &[f64]) -> Vec<Vec<Complex<T>>> {
+fn kinetic_factors<T: Real>(
+    setup: &Setup,
+    fractions: &[f64],
+    table: &[f64],
+) -> Vec<Vec<Complex<T>>> {
     let scale = 1.0 / setup.points as f64;
     fractions
         .iter()
@@ -647,5 +650,91 @@ mod tests {
         let mut bad = free_setup(64, 0.01);
         bad.kinetic.pop();
         assert!(Shared::<f64>::new(bad).is_err());
+    }
+}
+
+#[cfg(test)]
+mod drive_tests {
+    use super::*;
+    use crate::drive::Realized;
+
+    fn packet(setup: &Setup) -> Vec<Complex64> {
+        (0..setup.points)
+            .map(|j| {
+                let x = setup.start + j as f64 * setup.dx;
+                Complex64::from_polar((-x * x / 8.0).exp(), 0.7 * x)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_kick_every_two_steps_is_the_map_applied_by_hand() {
+        // Kicks at steps 0, 2, 4 of five: kick, two free steps, ... (free steps are exact).
+        let setup = free_setup(64, 0.1);
+        let shared = Shared::<f64>::new(setup.clone()).unwrap();
+        let never = AtomicBool::new(false);
+        let profile: Vec<f64> = (0..64).map(|j| (j as f64 * 0.3).sin()).collect();
+        let mut kicked = Stepper::new(&shared);
+        kicked.prepare(&[0.0; 64]).unwrap();
+        kicked
+            .set_drive(&Realized {
+                kicks: vec![(profile.clone(), 0, 2)],
+                ..Realized::default()
+            })
+            .unwrap();
+        let mut psi = packet(&setup);
+        kicked.advance(&mut psi, 3, &never).unwrap();
+        kicked.advance(&mut psi, 2, &never).unwrap();
+        let mut free = Stepper::new(&shared);
+        free.prepare(&[0.0; 64]).unwrap();
+        let mut by_hand = packet(&setup);
+        for steps in [2, 2, 1] {
+            for (z, &v) in by_hand.iter_mut().zip(&profile) {
+                *z *= Complex64::from_polar(1.0, -v);
+            }
+            free.advance(&mut by_hand, steps, &never).unwrap();
+        }
+        let gap = psi
+            .iter()
+            .zip(&by_hand)
+            .map(|(a, b)| (a - b).norm())
+            .fold(0.0, f64::max);
+        assert!(gap < 1e-12, "{gap}");
+    }
+
+    #[test]
+    fn a_twist_shifts_the_momentum_by_two_pi_beta_over_the_length() {
+        let setup = free_setup(64, 0.1);
+        let shared = Shared::<f64>::new(setup.clone()).unwrap();
+        let mut stepper = Stepper::new(&shared);
+        stepper.prepare(&[0.0; 64]).unwrap();
+        let length = 64.0 * setup.dx;
+        let shift = 2.0 * std::f64::consts::PI * 0.25 / length;
+        let table = crate::observables::wavenumbers(64, setup.dx)
+            .into_iter()
+            .map(|k| 0.5 * (k + shift) * (k + shift))
+            .collect();
+        stepper
+            .set_drive(&Realized {
+                twist: Some((0.25, shift, table)),
+                ..Realized::default()
+            })
+            .unwrap();
+        assert_eq!(stepper.wavenumber_shift(), shift);
+        // A plane wave of the periodic part: its phase turns at E = (k + shift)^2 / 2.
+        let k = 2.0 * std::f64::consts::PI * 3.0 / length;
+        let mut psi: Vec<Complex64> = (0..64)
+            .map(|j| Complex64::from_polar(1.0, k * (setup.start + j as f64 * setup.dx)))
+            .collect();
+        let before = psi[5];
+        stepper
+            .advance(&mut psi, 10, &AtomicBool::new(false))
+            .unwrap();
+        let turned = (psi[5] / before).arg();
+        let expected = -0.5 * (k + shift) * (k + shift) * 1.0;
+        let wrapped = (turned - expected + std::f64::consts::PI)
+            .rem_euclid(2.0 * std::f64::consts::PI)
+            - std::f64::consts::PI;
+        assert!(wrapped.abs() < 1e-12, "{turned} {expected}");
     }
 }

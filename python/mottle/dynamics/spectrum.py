@@ -151,6 +151,15 @@ def spectrum_config(system: System, packet, bounds, step: float, duration: float
     """
     if wanted is False:
         return None
+    from .drive import is_driven
+
+    if is_driven(system):
+        # T(E) from the time transform needs a static Hamiltonian (energy is not conserved otherwise).
+        if wanted:
+            raise InvalidParameterError(
+                "spectrum=True needs a static, periodic system: drop the time-dependent terms or the twist"
+            )
+        return None
     if bounds is None or bounds[1] >= system.grid.points:
         if wanted:
             raise InvalidParameterError("spectrum=True needs a detector (or disorder to default it to)")

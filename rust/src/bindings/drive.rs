@@ -74,11 +74,7 @@ request! {
 
 impl DriveRequest {
     /// The core's drive; `dispersion` is the one the twist shifts.
-    pub(crate) fn drive(
-        self,
-        dispersion: Dispersion,
-        points: usize,
-    ) -> Result<Drive, CoreError> {
+    pub(crate) fn drive(self, dispersion: Dispersion, points: usize) -> Result<Drive, CoreError> {
         let drive = Drive {
             kicks: self
                 .kicks
