@@ -1,11 +1,21 @@
-"""Running study points on a Dask cluster: one task per (point, chunk of realizations).
+"""Running study points on a Dask cluster: tasks of (point, run of chunks) pieces, in a sliding window.
 
-A task computes realizations ``[start, start + count)`` of one point with
-:func:`mottle.ensemble_partial` (``start`` a multiple of :data:`mottle.CHUNK`)
-and returns the unfolded chunks; the driver folds a point's partials in index
-order with :func:`mottle.merge_partials`, so the numbers do not depend on how
-many workers there were, which worker ran what, or how often a task was
-recomputed after a worker died.
+A piece is realizations ``[start, start + count)`` of one point, computed with
+:func:`mottle.ensemble_partial` (``start`` a multiple of :data:`mottle.CHUNK`);
+a task is one or more pieces and returns their unfolded chunks. The driver
+folds each point's chunks in index order as they arrive (what
+:func:`mottle.merge_partials` does), so the numbers do not depend on how many
+workers there were, which worker ran what, or how often a task was recomputed
+after a worker died. With ``target_stderr`` the driver checks the
+transmission's standard error after every chunk, as :func:`mottle.ensemble`
+does, and stops the point there: chunks computed beyond it are discarded.
+
+The driver's memory and work stay bounded at any study size: at most
+:data:`IN_FLIGHT_PER_SLOT` tasks per task slot are submitted at a time, only
+the points of those tasks are held (their chunks folded and dropped as they
+arrive), a finished point leaves the driver at its commit, and each point's
+system and run are built and checked on the worker that runs it (the warnings
+of its first piece are sent back and shown once).
 
 Threads. Dask runs as many tasks at once on a worker as it has Dask threads,
 and does not limit the Rust (rayon) pool inside them, so each task sizes that
@@ -14,9 +24,12 @@ divided by its Dask threads. A local cluster of N workers gets one Dask thread
 per worker (one task at a time) and ``threads = cores // N`` Rust threads per
 task, so the machine is used fully and never oversubscribed.
 
-Task size: enough chunks that every thread of a task has one, cut so that the
-study makes about four tasks per task slot (so a worker that finishes early
-finds more work and one that dies loses little).
+Task size. A point is cut into pieces of at least one chunk per thread of a
+task, and cut so that the study makes about four pieces per task slot (so a
+worker that finishes early finds more work and one that dies loses little).
+Small points are grouped, consecutive ones in one task, up to about
+:data:`TASK_SECONDS` of compute as measured on the tasks so far, so that a
+study of many small points does not pay Dask's cost per task for each.
 """
 
 from __future__ import annotations
@@ -29,12 +42,12 @@ import threading
 import time
 import warnings
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 from .. import _checks
 from ..errors import InvalidParameterError, MottleError
-from .study import StudyPoint, build_packet, build_system, run_arguments
+from .study import StudyPoint, build_packet, build_system, detector_of, run_arguments
 
 if TYPE_CHECKING:
     from ..dynamics.ensemble import EnsemblePartial
@@ -43,11 +56,18 @@ if TYPE_CHECKING:
 # a task after this many such deaths (its default is 3, low for long runs on preemptible nodes).
 ALLOWED_FAILURES = 10
 TASKS_PER_WORKER = 4
+# Tasks submitted at a time per task slot: enough that no worker waits for the driver.
+IN_FLIGHT_PER_SLOT = 3
+# Compute per task that small points are grouped up to, and the most pieces in one task.
+TASK_SECONDS = 0.5
+PIECES_PER_TASK = 256
+# How often the driver asks the scheduler how many task slots there are (workers come and go).
+LAYOUT_SECONDS = 5.0
 
 
 @dataclass
 class TaskOutput:
-    """What a task sends back: the partial and where and when it ran."""
+    """What a piece sends back: the partial, where and when it ran, and (first piece) its warnings."""
 
     index: int
     partial: EnsemblePartial
@@ -55,24 +75,50 @@ class TaskOutput:
     ended: float
     elapsed: float
     host: str
+    warnings: list = field(default_factory=list)
 
 
 def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, count: int, threads):
-    """Realizations ``[start, start + count)`` of the point ``resolved`` (runs on a worker)."""
+    """Realizations ``[start, start + count)`` of the point ``resolved`` (runs on a worker).
+
+    The warnings of the point's first piece (``start == 0``) are kept in the
+    output as ``(category, message)`` for the driver to show; the others'
+    would repeat them and are dropped.
+    """
     from ..dynamics.ensemble import ensemble_partial
 
     began, clock = time.time(), time.perf_counter()
     if threads is None:
         threads = _worker_threads()
-    system = build_system(resolved, tables)
-    packet = build_packet(resolved)
-    arguments = run_arguments(resolved, seed)
-    arguments.pop("realizations")
-    with warnings.catch_warnings():
-        # The driver already showed the point's warnings once; workers would repeat them per task.
-        warnings.simplefilter("ignore")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always" if start == 0 else "ignore")
+        system = build_system(resolved, tables)
+        packet = build_packet(resolved)
+        arguments = run_arguments(resolved, seed)
+        arguments.pop("realizations")
+        arguments.pop("target_stderr", None)  # the driver stops the point
         partial = ensemble_partial(system, packet, start=start, count=count, threads=threads, **arguments)
-    return TaskOutput(index, partial, began, time.time(), time.perf_counter() - clock, socket.gethostname())
+    shown = [(item.category, str(item.message)) for item in caught]
+    return TaskOutput(
+        index, partial, began, time.time(), time.perf_counter() - clock, socket.gethostname(), shown
+    )
+
+
+def run_pieces(pieces: list[tuple], threads) -> list[TaskOutput]:
+    """:func:`run_task` for each ``(resolved, tables, seed, index, start, count)`` (runs on a worker).
+
+    An error is sent back with the index of the point it came from as ``mottle_point``.
+    """
+    outputs = []
+    for piece in pieces:
+        try:
+            resolved, tables, seed, index, start, count = piece
+            outputs.append(run_task(resolved, tables, seed, index, start, count, threads))
+        except Exception as error:
+            with contextlib.suppress(AttributeError, TypeError):
+                error.mottle_point = piece[3]  # type: ignore[attr-defined]
+            raise
+    return outputs
 
 
 def _worker_threads() -> int:
@@ -102,6 +148,12 @@ def task_size(points: list[StudyPoint], slots: int, threads_per_task: int) -> in
     from ..dynamics.ensemble import CHUNK
 
     chunks = sum(math.ceil(point.realizations / CHUNK) for point in points)
+    return _piece_size(chunks, slots, threads_per_task)
+
+
+def _piece_size(chunks: int, slots: int, threads_per_task: int) -> int:
+    from ..dynamics.ensemble import CHUNK
+
     per_task = max(threads_per_task, math.ceil(chunks / (TASKS_PER_WORKER * max(slots, 1))))
     return CHUNK * per_task
 
@@ -164,87 +216,243 @@ def _workers_ignore_ctrl_c():
         signal.signal(signal.SIGINT, previous)
 
 
-def run_on_cluster(client, points: list[StudyPoint], threads: int | None, advance) -> Iterator[list]:
-    """Run ``points`` as tasks on ``client``; yields lists of ``(point, result, timing)`` as points complete.
+class _Assembly:
+    """One point's chunks, folded in index order as they arrive; done at the cap or at target_stderr."""
 
-    ``advance(realizations)`` is called as each task finishes.
+    def __init__(self, point: StudyPoint, target: float | None):
+        from ..dynamics.ensemble import _Fold
+
+        self.point, self.target = point, target
+        self.fold = _Fold()
+        self.waiting: dict[int, TaskOutput] = {}
+        self.first: EnsemblePartial | None = None
+        self.began, self.ended, self.elapsed = math.inf, -math.inf, 0.0
+        self.hosts: set[str] = set()
+        self.done = False
+
+    def add(self, output: TaskOutput) -> int:
+        """Fold what is now in order; returns the realizations folded."""
+        from ..analysis.statistics import stderr
+
+        self.waiting[output.partial.start] = output
+        before = self.fold.count
+        while not self.done and self.fold.next_start in self.waiting:
+            item = self.waiting.pop(self.fold.next_start)
+            if self.first is None:
+                self.first = item.partial
+            self.began, self.ended = min(self.began, item.began), max(self.ended, item.ended)
+            self.elapsed += item.elapsed
+            self.hosts.add(item.host)
+            for chunk in item.partial.chunks:
+                self.fold.add(chunk)
+                # The rule of mottle.ensemble: checked after every chunk, from two realizations on.
+                if (
+                    self.target is not None
+                    and self.fold.count >= 2
+                    and stderr(self.fold.transmission()) < self.target
+                ):
+                    self.done = True
+                    break
+            if self.fold.count >= self.point.realizations:
+                self.done = True
+        if self.done:
+            self.waiting.clear()
+        return self.fold.count - before
+
+    def result(self):
+        from ..dynamics.ensemble import _finish
+
+        first = self.first
+        assert first is not None
+        result = _finish(
+            self.fold,
+            first.seed,
+            first.times,
+            self.point.system(),
+            (first.spectrum_wavenumbers, first.spectrum_energies),
+            first.step,
+            first.duration,
+        )
+        timing = {
+            "wall_time": self.ended - self.began,
+            "compute_time": self.elapsed,
+            "host": ",".join(sorted(self.hosts)),
+        }
+        return self.point, result, timing
+
+
+def _target(point: StudyPoint) -> float | None:
+    """The point's ``target_stderr`` (None: run the cap), checked as :func:`mottle.ensemble` checks it."""
+    from ..dynamics.propagate import default_detector
+
+    target = point.run_arguments().get("target_stderr")
+    if target is None:
+        return None
+    target = _checks.positive("target_stderr", target)
+    if default_detector(point.system(), detector_of(point.resolved)) is None:
+        raise InvalidParameterError(
+            f"point {point.index + 1} ({point.label()}): target_stderr needs a detector "
+            "(or disorder to default it to)"
+        )
+    return target
+
+
+class _Pieces:
+    """The pieces still to submit, point after point, made as they are asked for."""
+
+    def __init__(self, points: list[StudyPoint], size: int, threads: int):
+        from ..dynamics.ensemble import CHUNK
+
+        self.points, self.size, self.threads = points, size, threads
+        self.chunks_left = sum(math.ceil(point.realizations / CHUNK) for point in points)
+        self.rank = 0  # the point whose pieces come next
+        self.start = 0
+        self.target: float | None = None
+
+    def __bool__(self) -> bool:
+        return self.rank < len(self.points)
+
+    def skip(self, index: int) -> None:
+        """Point ``index`` stopped early: submit no more of it."""
+        from ..dynamics.ensemble import CHUNK
+
+        if self and self.points[self.rank].index == index and self.start > 0:
+            point = self.points[self.rank]
+            self.chunks_left -= math.ceil((point.realizations - self.start) / CHUNK)
+            self.rank += 1
+            self.start = 0
+
+    def take(self, runs: float) -> list[tuple[StudyPoint, float | None, int, int]]:
+        """Pieces ``(point, target, start, count)`` of about ``runs`` realizations (at least one piece)."""
+        from ..dynamics.ensemble import CHUNK
+
+        out: list[tuple[StudyPoint, float | None, int, int]] = []
+        total = 0
+        while self and len(out) < PIECES_PER_TASK:
+            point = self.points[self.rank]
+            if self.start == 0:
+                self.target = _target(point)
+            # A point that may stop early is cut finer: less is computed past its stopping chunk.
+            size = CHUNK * max(self.threads, 1) if self.target is not None else self.size
+            count = min(size, point.realizations - self.start)
+            if out and total + count > runs:
+                break
+            out.append((point, self.target, self.start, count))
+            total += count
+            self.start += count
+            self.chunks_left -= math.ceil(count / CHUNK)
+            if self.start >= point.realizations:
+                self.rank += 1
+                self.start = 0
+        return out
+
+
+def run_on_cluster(
+    client, points: list[StudyPoint], threads: int | None, advance, skip=None, batch=None
+) -> Iterator[list]:
+    """Run ``points`` as tasks on ``client``; yields lists of ``(point, result, timing)`` as batches fall due.
+
+    ``advance(realizations)`` is called as realizations are folded,
+    ``skip(realizations)`` when a point stops at its target_stderr before its cap.
+    ``batch`` (a :class:`mottle.studies.runner.Batch`) collects the finished
+    points and says when to yield them; what it holds when the run is stopped
+    is not yielded (the caller may save it).
     """
     from distributed import KilledWorker, as_completed
 
-    from ..dynamics.ensemble import merge_partials, plan
+    from .runner import Batch
 
-    layout = client.nthreads()
-    # Task slots: a worker runs as many tasks at once as it has Dask threads.
-    slots = max(1, sum(layout.values()))
-    size = task_size(points, slots, threads or 1)
-    futures = []
-    owner = {}
-    expected = {}
-    by_index = {point.index: point for point in points}
-    times = {}
-    for rank, point in enumerate(points):
-        expected[point.index] = point.realizations
-        # Validates and warns once per point, here at the driver, before any task runs.
-        system, packet, arguments = point.build()
-        arguments.pop("realizations")
-        times[point.index] = plan(system, packet, **arguments).times
-        for start in range(0, point.realizations, size):
-            count = min(size, point.realizations - start)
+    batch = Batch() if batch is None else batch
+    per_task = threads or 1
+    slots = max(1, sum(client.nthreads().values()))
+    pieces = _Pieces(points, 0, per_task)
+    pieces.size = _piece_size(pieces.chunks_left, slots, per_task)
+    asked = time.monotonic()
+    in_flight: dict[str, tuple] = {}  # task key -> (future, the points of its pieces)
+    assembling: dict[int, _Assembly] = {}
+    seconds_per_run: float | None = None
+    ran, spent = 0, 0.0
+    submitted = 0
+    pending = as_completed()
+
+    def fill():
+        nonlocal submitted
+        while pieces and len(in_flight) < IN_FLIGHT_PER_SLOT * slots:
+            runs = 0.0 if seconds_per_run is None else TASK_SECONDS / max(seconds_per_run, 1e-12)
+            taken = pieces.take(min(runs, pieces.size))
+            if not taken:
+                return
+            for point, target, _, _ in taken:
+                if point.index not in assembling:
+                    assembling[point.index] = _Assembly(point, target)
+            first = taken[0]
             future = client.submit(
-                run_task,
-                point.resolved,
-                dict(point.tables),
-                point.seed,
-                point.index,
-                start,
-                count,
+                run_pieces,
+                [(p.resolved, dict(p.tables), p.seed, p.index, start, count) for p, _, start, count in taken],
                 threads,
                 pure=False,
-                key=f"mottle-point-{point.index}-{start}-{time.time_ns()}",
-                # Earlier points first, so that points finish (and are saved) one after another.
-                priority=len(points) - rank,
+                key=f"mottle-point-{first[0].index}-{first[2]}-{len(taken)}-{time.time_ns()}",
+                # Earlier tasks first, so that points finish (and are saved) one after another.
+                priority=-submitted,
             )
-            futures.append(future)
-            owner[future.key] = point
-    partials: dict[int, list[TaskOutput]] = {index: [] for index in expected}
-    pending = as_completed(futures)
+            submitted += 1
+            in_flight[future.key] = (future, [p.index for p, _, _, _ in taken])
+            pending.add(future)
+
+    def receive(future):
+        nonlocal seconds_per_run, ran, spent
+        _, indices = in_flight.pop(future.key)
+        try:
+            outputs = future.result()
+        except KilledWorker:
+            raise
+        except Exception as error:
+            index = getattr(error, "mottle_point", indices[0])
+            point = assembling[index].point if index in assembling else None
+            where = f"point {index + 1} ({point.label()})" if point is not None else f"point {index + 1}"
+            raise MottleError(f"{where} failed on a worker: {type(error).__name__}: {error}") from error
+        for output in outputs:
+            ran += output.partial.count
+            spent += output.elapsed
+            for category, message in output.warnings:
+                warnings.warn(message, category, stacklevel=2)
+            assembly = assembling.get(output.index)
+            if assembly is None:  # the point stopped at its target_stderr before this piece
+                continue
+            advance(assembly.add(output))
+            if assembly.done:
+                del assembling[output.index]
+                pieces.skip(output.index)
+                finished = assembly.result()
+                if skip is not None and finished[1].count < assembly.point.realizations:
+                    skip(assembly.point.realizations - finished[1].count)
+                batch.add(finished)
+        if ran:
+            seconds_per_run = spent / ran
+
     try:
-        for batch in pending.batches():
-            ready = []
-            for future in batch:
-                try:
-                    output = future.result()
-                except KilledWorker:
-                    raise
-                except Exception as error:
-                    point = owner[future.key]
-                    raise MottleError(
-                        f"point {point.index + 1} ({point.label()}) failed on a worker: "
-                        f"{type(error).__name__}: {error}"
-                    ) from error
-                partials[output.index].append(output)
-                advance(output.partial.count)
-                if sum(item.partial.count for item in partials[output.index]) == expected[output.index]:
-                    ready.append(output.index)
-            finished = []
-            for index in sorted(ready):
-                point = by_index[index]
-                outputs = sorted(partials.pop(index), key=lambda item: item.partial.start)
-                result = merge_partials(
-                    [item.partial for item in outputs], point.system(), point.seed, times[index]
-                )
-                timing = {
-                    "wall_time": max(item.ended for item in outputs) - min(item.began for item in outputs),
-                    "compute_time": sum(item.elapsed for item in outputs),
-                    "host": ",".join(sorted({item.host for item in outputs})),
-                }
-                finished.append((point, result, timing))
-            if finished:
-                yield finished
-    except (Exception, KeyboardInterrupt):
+        fill()
+        while in_flight:
+            if not pending.has_ready() and batch:
+                # Something waits to be saved: wake up to save it in time.
+                while not pending.has_ready() and not batch.due():
+                    time.sleep(min(0.02, batch.wait_left()))
+                if batch.due():
+                    yield batch.take()
+                    continue
+            for future in pending.next_batch(block=True):
+                receive(future)
+            if time.monotonic() - asked >= LAYOUT_SECONDS:
+                asked = time.monotonic()
+                slots = max(1, sum(client.nthreads().values()))
+                pieces.size = _piece_size(pieces.chunks_left, slots, per_task)
+            fill()
+            if batch.due() or (not in_flight and batch):
+                yield batch.take()
+    except BaseException:
         with contextlib.suppress(Exception):
-            client.cancel(futures)
+            client.cancel([future for future, _ in in_flight.values()])
         raise
 
 
-__all__ = ["connect", "run_on_cluster", "run_task", "task_size"]
+__all__ = ["connect", "run_on_cluster", "run_pieces", "run_task", "task_size"]
