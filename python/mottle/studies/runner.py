@@ -37,8 +37,10 @@ RATE_SECONDS = 60.0
 class Batch:
     """Finished points waiting for one commit; :meth:`due` says when to commit them."""
 
-    def __init__(self, seconds: float = COMMIT_SECONDS, limit: int = COMMIT_POINTS, clock=time.monotonic):
-        self.seconds, self.limit, self.clock = seconds, limit, clock
+    def __init__(self, seconds: float | None = None, limit: int | None = None, clock=time.monotonic):
+        self.seconds = COMMIT_SECONDS if seconds is None else seconds
+        self.limit = COMMIT_POINTS if limit is None else limit
+        self.clock = clock
         self.items: list = []
         self.since = 0.0
 
