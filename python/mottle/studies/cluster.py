@@ -35,6 +35,7 @@ study of many small points does not pay Dask's cost per task for each.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import math
 import signal
 import socket
@@ -43,14 +44,17 @@ import time
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from typing import TYPE_CHECKING
+
+import numpy as np
 
 from .. import _checks
 from ..errors import InvalidParameterError, MottleError
 from .study import StudyPoint, build_packet, build_system, detector_of, run_arguments
 
 if TYPE_CHECKING:
-    from ..dynamics.ensemble import EnsemblePartial
+    from ..dynamics.ensemble import EnsemblePartial, EnsembleResult
 
 # A worker killed while running a task makes every task on it "suspicious"; Dask gives up on
 # a task after this many such deaths (its default is 3, low for long runs on preemptible nodes).
@@ -67,7 +71,9 @@ LAYOUT_SECONDS = 5.0
 
 @dataclass
 class TaskOutput:
-    """What a piece sends back: the partial, where and when it ran, and (first piece) its warnings."""
+    """What a piece sends back: its realizations (a partial, or for a whole point its ``result``),
+    where and when it ran, and for a point's first piece its warnings (and, when the point is
+    split, the grid's ``x`` and ``k`` for the driver's fold)."""
 
     index: int
     partial: EnsemblePartial
@@ -76,20 +82,28 @@ class TaskOutput:
     elapsed: float
     host: str
     warnings: list = field(default_factory=list)
+    count: int = 0
+    result: EnsembleResult | None = None
+    grid: tuple | None = None
 
 
-def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, count: int, threads):
+def run_task(
+    resolved: dict, tables: dict, seed: int, index: int, start: int, count: int, threads, whole=False
+):
     """Realizations ``[start, start + count)`` of the point ``resolved`` (runs on a worker).
 
+    ``whole``: they are all the point's realizations, folded here into its
+    result (:func:`mottle.merge_partials`, bitwise what the driver would make).
     The warnings of the point's first piece (``start == 0``) are kept in the
     output as ``(category, message)`` for the driver to show; the others'
     would repeat them and are dropped.
     """
-    from ..dynamics.ensemble import ensemble_partial
+    from ..dynamics.ensemble import ensemble_partial, merge_partials
 
     began, clock = time.time(), time.perf_counter()
     if threads is None:
         threads = _worker_threads()
+    result, grid = None, None
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always" if start == 0 else "ignore")
         system = build_system(resolved, tables)
@@ -98,22 +112,52 @@ def run_task(resolved: dict, tables: dict, seed: int, index: int, start: int, co
         arguments.pop("realizations")
         arguments.pop("target_stderr", None)  # the driver stops the point
         partial = ensemble_partial(system, packet, start=start, count=count, threads=threads, **arguments)
+        if whole:
+            result = merge_partials([partial], system)
+            partial = dataclasses.replace(partial, chunks=[])
+        elif start == 0:
+            grid = (np.asarray(system.grid.x), np.asarray(system.grid.k))
     shown = [(item.category, str(item.message)) for item in caught]
     return TaskOutput(
-        index, partial, began, time.time(), time.perf_counter() - clock, socket.gethostname(), shown
+        index,
+        partial,
+        began,
+        time.time(),
+        time.perf_counter() - clock,
+        socket.gethostname(),
+        shown,
+        count,
+        result,
+        grid,
     )
 
 
-def run_pieces(pieces: list[tuple], threads) -> list[TaskOutput]:
-    """:func:`run_task` for each ``(resolved, tables, seed, index, start, count)`` (runs on a worker).
+class Work:
+    """A task's pieces ``(resolved, tables, seed, index, start, count, whole)``, in an object of its
+    own so that Dask ships it as it is rather than walking every dict in it for futures."""
+
+    __slots__ = ("pieces",)
+
+    def __init__(self, pieces: list[tuple]):
+        self.pieces = pieces
+
+    def __getstate__(self):
+        return self.pieces
+
+    def __setstate__(self, pieces):
+        self.pieces = pieces
+
+
+def run_pieces(work: Work | list[tuple], threads) -> list[TaskOutput]:
+    """:func:`run_task` for each piece of ``work`` (runs on a worker).
 
     An error is sent back with the index of the point it came from as ``mottle_point``.
     """
     outputs = []
-    for piece in pieces:
+    for piece in work.pieces if isinstance(work, Work) else work:
         try:
-            resolved, tables, seed, index, start, count = piece
-            outputs.append(run_task(resolved, tables, seed, index, start, count, threads))
+            resolved, tables, seed, index, start, count, whole = piece
+            outputs.append(run_task(resolved, tables, seed, index, start, count, threads, whole))
         except Exception as error:
             with contextlib.suppress(AttributeError, TypeError):
                 error.mottle_point = piece[3]  # type: ignore[attr-defined]
@@ -226,6 +270,7 @@ class _Assembly:
         self.fold = _Fold()
         self.waiting: dict[int, TaskOutput] = {}
         self.first: EnsemblePartial | None = None
+        self.grid: tuple | None = None
         self.began, self.ended, self.elapsed = math.inf, -math.inf, 0.0
         self.hosts: set[str] = set()
         self.done = False
@@ -239,7 +284,7 @@ class _Assembly:
         while not self.done and self.fold.next_start in self.waiting:
             item = self.waiting.pop(self.fold.next_start)
             if self.first is None:
-                self.first = item.partial
+                self.first, self.grid = item.partial, item.grid
             self.began, self.ended = min(self.began, item.began), max(self.ended, item.ended)
             self.elapsed += item.elapsed
             self.hosts.add(item.host)
@@ -262,13 +307,14 @@ class _Assembly:
     def result(self):
         from ..dynamics.ensemble import _finish
 
-        first = self.first
-        assert first is not None
+        first, grid = self.first, self.grid
+        assert first is not None and grid is not None
+        # _finish reads only the system's grid x and k: the worker sent them with the first piece.
         result = _finish(
             self.fold,
             first.seed,
             first.times,
-            self.point.system(),
+            SimpleNamespace(grid=SimpleNamespace(x=grid[0], k=grid[1])),  # type: ignore[arg-type]
             (first.spectrum_wavenumbers, first.spectrum_energies),
             first.step,
             first.duration,
@@ -373,7 +419,8 @@ def run_on_cluster(
     seconds_per_run: float | None = None
     ran, spent = 0, 0.0
     submitted = 0
-    pending = as_completed()
+    # Results are gathered in the background as tasks finish, not one round trip at a time here.
+    pending = as_completed(with_results=True, raise_errors=False)
 
     def fill():
         nonlocal submitted
@@ -382,13 +429,17 @@ def run_on_cluster(
             taken = pieces.take(min(runs, pieces.size))
             if not taken:
                 return
-            for point, target, _, _ in taken:
-                if point.index not in assembling:
+            work = []
+            for point, target, start, count in taken:
+                whole = start == 0 and count == point.realizations and target is None
+                if not whole and point.index not in assembling:
                     assembling[point.index] = _Assembly(point, target)
+                tables = dict(point.tables)
+                work.append((point.resolved, tables, point.seed, point.index, start, count, whole))
             first = taken[0]
             future = client.submit(
                 run_pieces,
-                [(p.resolved, dict(p.tables), p.seed, p.index, start, count) for p, _, start, count in taken],
+                Work(work),
                 threads,
                 pure=False,
                 key=f"mottle-point-{first[0].index}-{first[2]}-{len(taken)}-{time.time_ns()}",
@@ -396,26 +447,35 @@ def run_on_cluster(
                 priority=-submitted,
             )
             submitted += 1
-            in_flight[future.key] = (future, [p.index for p, _, _, _ in taken])
+            in_flight[future.key] = (future, {p.index: p for p, _, _, _ in taken})
             pending.add(future)
 
-    def receive(future):
+    def receive(future, outputs):
         nonlocal seconds_per_run, ran, spent
-        _, indices = in_flight.pop(future.key)
-        try:
-            outputs = future.result()
-        except KilledWorker:
-            raise
-        except Exception as error:
-            index = getattr(error, "mottle_point", indices[0])
-            point = assembling[index].point if index in assembling else None
-            where = f"point {index + 1} ({point.label()})" if point is not None else f"point {index + 1}"
+        _, owners = in_flight.pop(future.key)
+        if future.status == "error":
+            error = outputs[1]
+            if isinstance(error, KilledWorker):
+                raise error
+            point = owners.get(getattr(error, "mottle_point", None), next(iter(owners.values())))
+            where = f"point {point.index + 1} ({point.label()})"
             raise MottleError(f"{where} failed on a worker: {type(error).__name__}: {error}") from error
+        if future.status != "finished":
+            first = next(iter(owners.values()))
+            raise MottleError(
+                f"the task of point {first.index + 1} ({first.label()}) was {future.status} on the cluster; "
+                "the points finished so far are saved: run again to resume"
+            )
         for output in outputs:
-            ran += output.partial.count
+            ran += output.count
             spent += output.elapsed
             for category, message in output.warnings:
                 warnings.warn(message, category, stacklevel=2)
+            if output.result is not None:  # a whole point, folded on the worker
+                timing = {"wall_time": output.ended - output.began, "compute_time": output.elapsed}
+                batch.add((owners[output.index], output.result, {**timing, "host": output.host}))
+                advance(output.count)
+                continue
             assembly = assembling.get(output.index)
             if assembly is None:  # the point stopped at its target_stderr before this piece
                 continue
@@ -440,8 +500,8 @@ def run_on_cluster(
                 if batch.due():
                     yield batch.take()
                     continue
-            for future in pending.next_batch(block=True):
-                receive(future)
+            for future, outputs in pending.next_batch(block=True):
+                receive(future, outputs)
             if time.monotonic() - asked >= LAYOUT_SECONDS:
                 asked = time.monotonic()
                 slots = max(1, sum(client.nthreads().values()))
@@ -455,4 +515,4 @@ def run_on_cluster(
         raise
 
 
-__all__ = ["connect", "run_on_cluster", "run_pieces", "run_task", "task_size"]
+__all__ = ["Work", "connect", "run_on_cluster", "run_pieces", "run_task", "task_size"]
