@@ -319,3 +319,15 @@ def test_tqdm_progress_shows_points_rate_and_time_left():
     display.close()
     assert "points 1/4" in err.getvalue() and "8 runs/s, 6 s left" in err.getvalue()
     assert out.getvalue() == "point 1/4 [a]\n"
+
+
+def test_points_finished_before_a_failing_one_are_saved(tmp_path):
+    small = small_study([0.1, 0.2, 0.3, 0.4])
+    broken = small.points[2]
+    resolved = {**broken.resolved, "run": {**broken.resolved["run"], "duration": -1.0}}
+    points = (*small.points[:2], dataclasses.replace(broken, resolved=resolved), small.points[3])
+    failing = dataclasses.replace(small, points=points)
+    with pytest.raises(mo.MottleError, match=r"point 3 \(.*rms=0.3\) failed"):
+        mo.run_study(failing, tmp_path / "partial.h5", progress=False, threads=1)
+    # The two finished points were still waiting for their batch's commit when point 3 failed.
+    assert [p.index for p in mo.open_store(tmp_path / "partial.h5").points] == [0, 1]

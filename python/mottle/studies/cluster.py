@@ -11,7 +11,7 @@ transmission's standard error after every chunk, as :func:`mottle.ensemble`
 does, and stops the point there: chunks computed beyond it are discarded.
 
 The driver's memory and work stay bounded at any study size: at most
-:data:`IN_FLIGHT_PER_SLOT` tasks per task slot are submitted at a time, only
+``IN_FLIGHT_PER_SLOT`` tasks per task slot are submitted at a time, only
 the points of those tasks are held (their chunks folded and dropped as they
 arrive), a finished point leaves the driver at its commit, and each point's
 system and run are built and checked on the worker that runs it (the warnings
@@ -28,7 +28,7 @@ Task size. A point is cut into pieces of at least one chunk per thread of a
 task, and cut so that the study makes about four pieces per task slot (so a
 worker that finishes early finds more work and one that dies loses little).
 Small points are grouped, consecutive ones in one task, up to about
-:data:`TASK_SECONDS` of compute as measured on the tasks so far, so that a
+``TASK_SECONDS`` of compute as measured on the tasks so far, so that a
 study of many small points does not pay Dask's cost per task for each.
 """
 

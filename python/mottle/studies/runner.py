@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import socket
@@ -160,7 +161,7 @@ class _Silent:
 
 class _Display(_Silent):
     """A tqdm bar over realizations (points done, runs per second, time left) and one printed line per
-    finished point; without tqdm, a status line on stderr every :data:`STATUS_SECONDS`."""
+    finished point; without tqdm, a status line on stderr every ``STATUS_SECONDS``."""
 
     def __init__(self, stream=None, clock=time.monotonic, out=None):
         self.stream = stream or sys.stderr
@@ -292,7 +293,7 @@ def run_study(
     cores divided among the local workers, or on an existing cluster a worker's
     cores divided by its Dask threads). The results are bitwise the same
     either way. Points that finish together are saved in one commit, at least
-    every :data:`COMMIT_SECONDS`. A second call with the same store resumes;
+    every ``COMMIT_SECONDS`` (1 s). A second call with the same store resumes;
     a store of another study is refused. Ctrl-C raises
     :class:`StudyInterrupted` after keeping every saved point. The progress
     display shows the points done, runs per second and the time left. Returns
@@ -330,7 +331,7 @@ def run_study(
 
 
 def _consume(batches, writer: StoreWriter, display, total: int, names, pending: Batch) -> None:
-    """Commit each yielded batch; on Ctrl-C also the finished points still ``pending``."""
+    """Commit each yielded batch; on Ctrl-C or an error also the finished points still ``pending``."""
     try:
         from distributed import KilledWorker
     except ImportError:
@@ -349,15 +350,17 @@ def _consume(batches, writer: StoreWriter, display, total: int, names, pending: 
     try:
         for batch in batches:
             save(batch)
-    except KeyboardInterrupt:
+    except BaseException as error:
+        # Ctrl-C, or a point that failed: the finished points still waiting are saved first.
         if pending:
-            save(pending.take())
+            with contextlib.suppress(Exception):  # the first error is the one to report
+                save(pending.take())
+        if isinstance(error, KilledWorker):
+            raise MottleError(
+                f"Dask gave up on a task after workers died running it too often ({error}); "
+                f"the points finished so far are saved: run again to resume"
+            ) from None
         raise
-    except KilledWorker as error:
-        raise MottleError(
-            f"Dask gave up on a task after workers died running it too often ({error}); "
-            f"the points finished so far are saved: run again to resume"
-        ) from None
     finally:
         close = getattr(batches, "close", None)
         if close is not None:
