@@ -12,8 +12,8 @@ import pytest
 
 import mottle as mo
 from mottle.analysis.statistics import stderr
-from mottle.studies import cluster, runner, study
-from mottle.studies.study import parse_study
+from mottle.studies import cluster, runner
+from mottle.studies.study import StudyPoint, parse_study
 
 STUDY = """\
 [system]
@@ -38,14 +38,22 @@ duration = 40.0
 step = 0.2
 realizations = %d
 seed = 3
+%s
 
 [sweep]
 "system.disorder.0.rms" = %s
 """
 
 
-def small_study(values, realizations=16):
-    return parse_study(STUDY % (realizations, [float(v) for v in values]), "small.toml")
+def small_study(values, realizations=16, target=None):
+    extra = "" if target is None else f"target_stderr = {target!r}"
+    return parse_study(STUDY % (realizations, extra, [float(v) for v in values]), "small.toml")
+
+
+def changed(point, **run):
+    """The point with some of its run keys changed (past the study file's validation)."""
+    resolved = {**point.resolved, "run": {**point.resolved["run"], **run}}
+    return StudyPoint(point.index, point.parameters, resolved, point.seed, point.tables)
 
 
 def same(one, other) -> None:
@@ -73,29 +81,6 @@ def client(request):
         yield connected
 
 
-@pytest.fixture
-def with_target(monkeypatch):
-    """Points whose run asks for a target_stderr; run_arguments passes it on to mo.ensemble."""
-    original = study.run_arguments
-
-    def run_arguments(resolved, seed):
-        arguments = original(resolved, seed)
-        if "target_stderr" in resolved["run"]:
-            arguments.setdefault("target_stderr", resolved["run"]["target_stderr"])
-        return arguments
-
-    monkeypatch.setattr(study, "run_arguments", run_arguments)
-
-    def make(base, target):
-        points = []
-        for point in base.points:
-            resolved = {**point.resolved, "run": {**point.resolved["run"], "target_stderr": target}}
-            points.append(dataclasses.replace(point, resolved=resolved))
-        return dataclasses.replace(base, points=tuple(points))
-
-    return make
-
-
 def stopping_target(point) -> tuple[float, int]:
     """A target_stderr that mo.ensemble reaches after k >= 3 chunks (k < the cap), and k."""
     system, packet, arguments = point.build()
@@ -119,10 +104,10 @@ def collect(client, points, threads=1):
     return out, sum(advanced), sum(skipped)
 
 
-def test_target_stderr_on_dask_stops_at_the_chunk_ensemble_stops_at(client, with_target):
+def test_target_stderr_on_dask_stops_at_the_chunk_ensemble_stops_at(client):
     base = small_study([0.3, 0.5], realizations=320)
     target, chunks = stopping_target(base.points[0])
-    points = with_target(base, target).points
+    points = list(small_study([0.3, 0.5], realizations=320, target=target).points)
     results, advanced, skipped = collect(client, list(points))
     assert sorted(results) == [0, 1]
     counts = []
@@ -140,10 +125,10 @@ def test_target_stderr_on_dask_stops_at_the_chunk_ensemble_stops_at(client, with
     assert advanced == sum(counts) and skipped == 2 * 320 - sum(counts)
 
 
-def test_run_study_with_target_stderr_stores_the_same_numbers_both_ways(client, with_target, tmp_path):
+def test_run_study_with_target_stderr_stores_the_same_numbers_both_ways(client, tmp_path):
     base = small_study([0.3], realizations=320)
     target, chunks = stopping_target(base.points[0])
-    stopping = with_target(base, target)
+    stopping = small_study([0.3], realizations=320, target=target)
     mo.run_study(stopping, tmp_path / "here.h5", progress=False, threads=1)
     mo.run_study(stopping, tmp_path / "there.h5", scheduler=client, progress=False, threads=1)
     here, there = mo.open_store(tmp_path / "here.h5").points, mo.open_store(tmp_path / "there.h5").points
@@ -188,9 +173,7 @@ def test_many_small_points_run_in_a_bounded_window_of_grouped_tasks(client):
 
 def test_a_failing_point_is_named(client, monkeypatch):
     points = list(small_study([0.3, 0.4, 0.5]).points)
-    broken = points[1]
-    resolved = {**broken.resolved, "run": {**broken.resolved["run"], "duration": -1.0}}
-    points[1] = dataclasses.replace(broken, resolved=resolved)
+    points[1] = changed(points[1], duration=-1.0)
     with pytest.raises(
         mo.MottleError, match=r"point 2 \(.*rms=0.4\) failed on a worker: InvalidParameterError"
     ):
@@ -323,9 +306,7 @@ def test_tqdm_progress_shows_points_rate_and_time_left():
 
 def test_points_finished_before_a_failing_one_are_saved(tmp_path):
     small = small_study([0.1, 0.2, 0.3, 0.4])
-    broken = small.points[2]
-    resolved = {**broken.resolved, "run": {**broken.resolved["run"], "duration": -1.0}}
-    points = (*small.points[:2], dataclasses.replace(broken, resolved=resolved), small.points[3])
+    points = (*small.points[:2], changed(small.points[2], duration=-1.0), small.points[3])
     failing = dataclasses.replace(small, points=points)
     with pytest.raises(mo.MottleError, match=r"point 3 \(.*rms=0.3\) failed"):
         mo.run_study(failing, tmp_path / "partial.h5", progress=False, threads=1)
