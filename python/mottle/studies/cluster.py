@@ -42,7 +42,7 @@ import socket
 import threading
 import time
 import warnings
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from types import SimpleNamespace
 from typing import TYPE_CHECKING
@@ -65,6 +65,8 @@ IN_FLIGHT_PER_SLOT = 3
 # Compute per task that small points are grouped up to, and the most pieces in one task.
 TASK_SECONDS = 0.5
 PIECES_PER_TASK = 256
+# Points sampled to estimate a large study's chunks (which only size the pieces).
+SAMPLE = 1000
 # How often the driver asks the scheduler how many task slots there are (workers come and go).
 LAYOUT_SECONDS = 5.0
 
@@ -346,14 +348,26 @@ def _target(point: StudyPoint) -> float | None:
 class _Pieces:
     """The pieces still to submit, point after point, made as they are asked for."""
 
-    def __init__(self, points: list[StudyPoint], size: int, threads: int):
+    def __init__(self, points: Sequence[StudyPoint], size: int, threads: int):
         from ..dynamics.ensemble import CHUNK
 
         self.points, self.size, self.threads = points, size, threads
-        self.chunks_left = sum(math.ceil(point.realizations / CHUNK) for point in points)
+        # The chunks to run only size the pieces: past SAMPLE points, estimated from a sample.
+        step = max(1, len(points) // SAMPLE)
+        sample = [points[i] for i in range(0, len(points), step)]
+        chunks = sum(math.ceil(point.realizations / CHUNK) for point in sample)
+        self.chunks_left = round(chunks * len(points) / max(len(sample), 1))
         self.rank = 0  # the point whose pieces come next
         self.start = 0
         self.target: float | None = None
+        self.current: StudyPoint | None = None
+        self.current_rank = -1
+
+    def _point(self) -> StudyPoint:
+        """The point at ``rank``, made once (a study's points are made each time they are asked for)."""
+        if self.current is None or self.current_rank != self.rank:
+            self.current, self.current_rank = self.points[self.rank], self.rank
+        return self.current
 
     def __bool__(self) -> bool:
         return self.rank < len(self.points)
@@ -362,8 +376,8 @@ class _Pieces:
         """Point ``index`` stopped early: submit no more of it."""
         from ..dynamics.ensemble import CHUNK
 
-        if self and self.points[self.rank].index == index and self.start > 0:
-            point = self.points[self.rank]
+        if self and self.start > 0 and self._point().index == index:
+            point = self._point()
             self.chunks_left -= math.ceil((point.realizations - self.start) / CHUNK)
             self.rank += 1
             self.start = 0
@@ -375,7 +389,7 @@ class _Pieces:
         out: list[tuple[StudyPoint, float | None, int, int]] = []
         total = 0
         while self and len(out) < PIECES_PER_TASK:
-            point = self.points[self.rank]
+            point = self._point()
             if self.start == 0:
                 self.target = _target(point)
             # A point that may stop early is cut finer: less is computed past its stopping chunk.
@@ -394,7 +408,7 @@ class _Pieces:
 
 
 def run_on_cluster(
-    client, points: list[StudyPoint], threads: int | None, advance, skip=None, batch=None
+    client, points: Sequence[StudyPoint], threads: int | None, advance, skip=None, batch=None
 ) -> Iterator[list]:
     """Run ``points`` as tasks on ``client``; yields lists of ``(point, result, timing)`` as batches fall due.
 

@@ -8,6 +8,7 @@ import os
 import socket
 import sys
 import time
+from collections.abc import Sequence
 
 from ..errors import MottleError
 from .store import Finished, Store, StoreWriter, open_store
@@ -247,7 +248,7 @@ def summary_line(point: StudyPoint, total: int, result, wall_time: float, names=
     )
 
 
-def _in_process(points: list[StudyPoint], threads, advance, skip, batch: Batch):
+def _in_process(points: Sequence[StudyPoint], threads, advance, skip, batch: Batch):
     """Run ``points`` one after another; yields lists of ``(point, result, timing)`` as batches fall due."""
     from ..dynamics.ensemble import ensemble
 
@@ -274,6 +275,33 @@ def _in_process(points: list[StudyPoint], threads, advance, skip, batch: Batch):
             yield batch.take()
     if batch:
         yield batch.take()
+
+
+class _Todo(Sequence):
+    """The points of a study not in the store yet, made as they are asked for (a study's points
+    are made on demand, so the driver never holds them all)."""
+
+    def __init__(self, points: Sequence[StudyPoint], indices: list[int]):
+        self.points, self.indices = points, indices
+
+    def __len__(self) -> int:
+        return len(self.indices)
+
+    def __getitem__(self, item):
+        if isinstance(item, slice):
+            return [self.points[index] for index in self.indices[item]]
+        return self.points[self.indices[item]]
+
+    def __iter__(self):
+        for index in self.indices:
+            yield self.points[index]
+
+
+def _cap(study: Study, todo: _Todo) -> int:
+    """The realizations of the points to run, at most (without making each point when unswept)."""
+    if "run.realizations" not in study.sweep:
+        return len(todo) * int(study.document["run"]["realizations"])
+    return sum(point.realizations for point in todo)
 
 
 def run_study(
@@ -305,10 +333,10 @@ def run_study(
     total = len(study.points)
     names = short_names(study.points[0].parameters)
     with StoreWriter(store, study) as writer:
-        todo = [point for point in study.points if point.index not in writer.done]
+        todo = _Todo(study.points, [i for i in range(total) if i not in writer.done])
         if not todo:
             return open_store(store)
-        display.start(total, total - len(todo), sum(point.realizations for point in todo))
+        display.start(total, total - len(todo), _cap(study, todo))
         try:
             pending = Batch()
             if workers is None and scheduler is None:
