@@ -44,10 +44,7 @@ import time
 import warnings
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
-from types import SimpleNamespace
 from typing import TYPE_CHECKING
-
-import numpy as np
 
 from .. import _checks
 from ..errors import InvalidParameterError, MottleError
@@ -74,8 +71,7 @@ LAYOUT_SECONDS = 5.0
 @dataclass
 class TaskOutput:
     """What a piece sends back: its realizations (a partial, or for a whole point its ``result``),
-    where and when it ran, and for a point's first piece its warnings (and, when the point is
-    split, the grid's ``x`` and ``k`` for the driver's fold)."""
+    where and when it ran, and for a point's first piece its warnings."""
 
     index: int
     partial: EnsemblePartial
@@ -86,7 +82,6 @@ class TaskOutput:
     warnings: list = field(default_factory=list)
     count: int = 0
     result: EnsembleResult | None = None
-    grid: tuple | None = None
 
 
 def run_task(
@@ -105,7 +100,7 @@ def run_task(
     began, clock = time.time(), time.perf_counter()
     if threads is None:
         threads = _worker_threads()
-    result, grid = None, None
+    result = None
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always" if start == 0 else "ignore")
         system = build_system(resolved, tables)
@@ -117,8 +112,6 @@ def run_task(
         if whole:
             result = merge_partials([partial], system)
             partial = dataclasses.replace(partial, chunks=[])
-        elif start == 0:
-            grid = (np.asarray(system.grid.x), np.asarray(system.grid.k))
     shown = [(item.category, str(item.message)) for item in caught]
     return TaskOutput(
         index,
@@ -130,7 +123,6 @@ def run_task(
         shown,
         count,
         result,
-        grid,
     )
 
 
@@ -272,7 +264,6 @@ class _Assembly:
         self.fold = _Fold()
         self.waiting: dict[int, TaskOutput] = {}
         self.first: EnsemblePartial | None = None
-        self.grid: tuple | None = None
         self.began, self.ended, self.elapsed = math.inf, -math.inf, 0.0
         self.hosts: set[str] = set()
         self.done = False
@@ -286,7 +277,7 @@ class _Assembly:
         while not self.done and self.fold.next_start in self.waiting:
             item = self.waiting.pop(self.fold.next_start)
             if self.first is None:
-                self.first, self.grid = item.partial, item.grid
+                self.first = item.partial
             self.began, self.ended = min(self.began, item.began), max(self.ended, item.ended)
             self.elapsed += item.elapsed
             self.hosts.add(item.host)
@@ -309,14 +300,13 @@ class _Assembly:
     def result(self):
         from ..dynamics.ensemble import _finish
 
-        first, grid = self.first, self.grid
-        assert first is not None and grid is not None
-        # _finish reads only the system's grid x and k: the worker sent them with the first piece.
+        first = self.first
+        assert first is not None
         result = _finish(
             self.fold,
             first.seed,
             first.times,
-            SimpleNamespace(grid=SimpleNamespace(x=grid[0], k=grid[1])),  # type: ignore[arg-type]
+            self.point.system(),
             (first.spectrum_wavenumbers, first.spectrum_energies),
             first.step,
             first.duration,
