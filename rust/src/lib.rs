@@ -9,6 +9,7 @@ pub mod dispersion;
 pub mod drive;
 pub mod ensemble;
 pub mod error;
+pub mod ground;
 pub mod kernels;
 pub mod localization;
 pub mod observables;

@@ -19,6 +19,7 @@ mod dispersion;
 mod drive;
 mod ensemble;
 mod error;
+mod ground;
 mod localization;
 mod packets;
 mod propagate;
@@ -117,6 +118,7 @@ fn core_module(module: &Bound<'_, PyModule>) -> PyResult<()> {
     ensemble::register(module)?;
     localization::register(module)?;
     classical::register(module)?;
+    ground::register(module)?;
     module.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }
