@@ -26,6 +26,7 @@ from .dynamics.ensemble import (
     ensemble_partial,
     merge_partials,
 )
+from .dynamics.ground import GroundState, ground_state
 from .dynamics.propagate import Run, propagate
 from .dynamics.realize import realize
 from .errors import (
@@ -66,6 +67,7 @@ __all__ = [
     "EnsembleResult",
     "GaussianPacket",
     "Grid",
+    "GroundState",
     "Harmonic",
     "InvalidParameterError",
     "InvalidTypeError",
@@ -93,6 +95,7 @@ __all__ = [
     "Wavefunction",
     "ensemble",
     "ensemble_partial",
+    "ground_state",
     "load_study",
     "merge_partials",
     "open_store",

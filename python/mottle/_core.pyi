@@ -21,6 +21,7 @@ __all__ = [
     "classical_particles",
     "draw_packet",
     "ensemble_chunks",
+    "ground_state_of",
     "log_transmissions_of",
     "lyapunov_exponents_of",
     "propagate_one",
@@ -230,6 +231,14 @@ class _Drive(TypedDict):
     terms: list[_TimeTerm]
     quasimomentum: _Draw | None
 
+class _Ground(TypedDict):
+    points: int
+    dx: float
+    model: _Model
+    nonlinearity: float
+    tolerance: float
+    max_steps: int
+
 def propagate_one(
     setup: _Setup,
     run: _Run,
@@ -275,4 +284,7 @@ def log_transmissions_of(
 ) -> npt.NDArray[np.float64]: ...
 def classical_particles(
     line: _Line, model: _Model, config: _Particles, potential: npt.NDArray[np.float64]
+) -> dict[str, Any]: ...
+def ground_state_of(
+    request: _Ground, potential: npt.NDArray[np.float64], initial: npt.NDArray[np.float64]
 ) -> dict[str, Any]: ...

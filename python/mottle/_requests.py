@@ -24,6 +24,7 @@ if TYPE_CHECKING:
         _Draw,
         _Drive,
         _EnsembleRun,
+        _Ground,
         _Kick,
         _Line,
         _Model,
@@ -274,3 +275,14 @@ def drive(system: System, step: float, steps: int) -> _Drive | None:
             )
     quasimomentum = draw(grid.quasimomentum) if grid.twisted else None
     return {"kicks": kicks, "terms": terms, "quasimomentum": quasimomentum}
+def ground(system: System, tolerance: float, max_steps: int) -> _Ground:
+    """A ground-state search: grid, model, nonlinearity and the stopping rule."""
+    grid = system.grid
+    return {
+        "points": int(grid.points),
+        "dx": float(grid.dx),
+        "model": model(system.model),
+        "nonlinearity": float(system.nonlinearity),
+        "tolerance": float(tolerance),
+        "max_steps": int(max_steps),
+    }

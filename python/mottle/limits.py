@@ -49,3 +49,8 @@ LOG_NOISE_FLOOR = -64.0
 STUDY_POINTS = 10_000_000
 """Most points one study may have: beyond it the list of points, the store's index and a report
 outgrow what one machine handles in seconds (split the study, or sweep fewer values)."""
+GROUND_EDGE_DENSITY = 1e-4
+"""A ground state whose density at the box edges exceeds this fraction of its peak is held by the box,
+not by the potential: ``ground_state`` refuses it (the ground state of a periodic box is not what a
+trap calculation wants). Between the tolerance and this, it warns: the periodic images' overlap then
+shifts mu by about that fraction (common practice)."""

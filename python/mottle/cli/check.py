@@ -347,4 +347,34 @@ def _born_speckle() -> Outcome:
     return Outcome(0.5 * sum(values), reference, 0.03, relative=True)
 
 
+# --------------------------------------------------------------------------- ground states
+
+@case(
+    "ground-state-harmonic",
+    "ground-state energy of the harmonic trap, hbar = m = omega = 1: E0 = hbar omega / 2",
+    "Cohen-Tannoudji, Diu & Laloe, Quantum Mechanics vol. 1 (1977), ch. V",
+    needs=("ground_state",),
+)
+def _ground_harmonic() -> Outcome:
+    import mottle as mo
+
+    state = mo.ground_state(mo.System(mo.Grid(512, 24.0), potential=mo.Harmonic(1.0)))
+    return Outcome(state.energy, 0.5, 1e-9, note="residual stop at 1e-10 of the energy scale")
+
+
+@case(
+    "ground-state-thomas-fermi",
+    "1D GP ground state g = 500, omega = 1: mu against Thomas-Fermi (3 g omega / (4 sqrt 2))^(2/3)",
+    "Pitaevskii & Stringari, Bose-Einstein Condensation (2003), 1D Thomas-Fermi limit",
+    needs=("ground_state",),
+)
+def _ground_thomas_fermi() -> Outcome:
+    import mottle as mo
+
+    system = mo.System(mo.Grid(2048, 30.0), potential=mo.Harmonic(1.0), nonlinearity=500.0)
+    state = mo.ground_state(system)
+    reference = (3.0 * 500.0 / (4.0 * math.sqrt(2.0))) ** (2.0 / 3.0)
+    return Outcome(state.chemical_potential, reference, 0.02, relative=True, note="true mu is 0.018 % above TF")
+
+
 __all__ = ["Case", "Outcome", "Result", "case", "format_table", "registry", "run_cases"]
