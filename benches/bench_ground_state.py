@@ -14,9 +14,9 @@ import math
 
 import numpy as np
 import pytest
-from conftest import figure
 
 import mottle as mo
+from conftest import figure
 from mottle.dynamics.ground import initial_guess
 
 G = 500.0
@@ -41,7 +41,10 @@ def numpy_imaginary_time(tau: float = 4e-3) -> float:
         psi = np.fft.ifft(kinetic_factor * np.fft.fft(psi)).real
         psi *= np.exp(-0.5 * tau * (potential + G * psi**2))
         psi /= math.sqrt(np.sum(psi**2) * dx)
-        base = float(np.sum(psi * np.fft.ifft(0.5 * k2 * np.fft.fft(psi)).real) + np.sum(potential * psi**2)) * dx
+        base = (
+            float(np.sum(psi * np.fft.ifft(0.5 * k2 * np.fft.fft(psi)).real) + np.sum(potential * psi**2))
+            * dx
+        )
         quartic = float(np.sum(psi**4)) * dx
         energy, mu = base + 0.5 * G * quartic, base + G * quartic
         if abs(energy - last) < 1e-10:
@@ -67,8 +70,12 @@ def test_numpy(benchmark):
 
 def test_figures():
     if set(timings) != {"core", "numpy"}:
-        pytest.skip("run the whole module: the comparison needs both benchmarks (and not --benchmark-disable)")
+        pytest.skip(
+            "run the whole module: the comparison needs both benchmarks (and not --benchmark-disable)"
+        )
     figure("ground state GP N=4096 to 1e-10: core seconds", timings["core"], "< 1 s")
     figure("ground state: numpy dE-stop loop / core time", timings["numpy"] / timings["core"], "—")
-    figure("ground state: numpy dE-stop loop relative mu error", abs(values["numpy"] / values["core"] - 1), "—")
+    figure(
+        "ground state: numpy dE-stop loop relative mu error", abs(values["numpy"] / values["core"] - 1), "—"
+    )
     assert timings["core"] < 1.0

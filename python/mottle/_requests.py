@@ -275,6 +275,8 @@ def drive(system: System, step: float, steps: int) -> _Drive | None:
             )
     quasimomentum = draw(grid.quasimomentum) if grid.twisted else None
     return {"kicks": kicks, "terms": terms, "quasimomentum": quasimomentum}
+
+
 def ground(system: System, tolerance: float, max_steps: int) -> _Ground:
     """A ground-state search: grid, model, nonlinearity and the stopping rule."""
     grid = system.grid

@@ -541,7 +541,7 @@ fn polish(
                 *qv -= along * x;
             }
             let curvature = work.inner(&p, &q);
-            if !(curvature > 0.0) {
+            if curvature.is_nan() || curvature <= 0.0 {
                 // Not near a minimum: the Jacobian is indefinite on the tangent space.
                 break;
             }

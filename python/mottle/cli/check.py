@@ -349,6 +349,7 @@ def _born_speckle() -> Outcome:
 
 # --------------------------------------------------------------------------- ground states
 
+
 @case(
     "ground-state-harmonic",
     "ground-state energy of the harmonic trap, hbar = m = omega = 1: E0 = hbar omega / 2",
@@ -374,7 +375,9 @@ def _ground_thomas_fermi() -> Outcome:
     system = mo.System(mo.Grid(2048, 30.0), potential=mo.Harmonic(1.0), nonlinearity=500.0)
     state = mo.ground_state(system)
     reference = (3.0 * 500.0 / (4.0 * math.sqrt(2.0))) ** (2.0 / 3.0)
-    return Outcome(state.chemical_potential, reference, 0.02, relative=True, note="true mu is 0.018 % above TF")
+    return Outcome(
+        state.chemical_potential, reference, 0.02, relative=True, note="true mu is 0.018 % above TF"
+    )
 
 
 __all__ = ["Case", "Outcome", "Result", "case", "format_table", "registry", "run_cases"]
