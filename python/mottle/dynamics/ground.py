@@ -76,9 +76,9 @@ def _start(system: System, initial, potential: np.ndarray) -> np.ndarray:
         initial.validate(system.grid)
         values = initial.values(system.grid)
     else:
-        values = Wavefunction(initial)
-        values.validate(system.grid)
-        values = values.table
+        given = Wavefunction(initial)
+        given.validate(system.grid)
+        values = given.table
     return np.abs(np.asarray(values)).astype(np.float64)
 
 
