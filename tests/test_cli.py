@@ -165,14 +165,21 @@ def test_a_cluster_that_loses_a_worker_gives_the_same_numbers(workspace, in_proc
 
 def test_a_killed_driver_resumes_to_the_same_numbers(workspace, in_process):
     store = workspace / "resumed.h5"
-    run = start("run", workspace / "study.toml", "--store", store)
+    # One thread (the numbers do not depend on it): the points take long enough that the first
+    # commit comes before the last point, on a fast machine too.
+    run = start("run", workspace / "study.toml", "--store", store, "--threads", 1)
     printed = point_lines("".join(read_until_point(run)))
-    # A second writer on the same store is refused while the first one runs.
-    second = mottle("run", workspace / "study.toml", "--store", store)
+    # Frozen with its lock held, so that it cannot finish before the second writer tries (points
+    # that finish together are committed together, so the run may be close to its end here).
+    run.send_signal(signal.SIGSTOP)
+    try:
+        # A second writer on the same store is refused while the first one holds it.
+        second = mottle("run", workspace / "study.toml", "--store", store)
+    finally:
+        run.send_signal(signal.SIGKILL)
+        run.wait()
     assert second.returncode == 1
     assert "being written by another mottle run" in second.stderr and "Traceback" not in second.stderr
-    run.send_signal(signal.SIGKILL)
-    run.wait()
     saved = mo.open_store(store)
     finished = {p.index for p in saved.points}
     assert {int(line.split()[1].split("/")[0]) - 1 for line in printed} <= finished

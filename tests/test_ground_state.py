@@ -171,7 +171,8 @@ def test_ground_state_feeds_ensembles_and_disordered_traps():
 
 def test_lattice_trap_ground_state_sits_half_a_quantum_above_the_band_bottom():
     # Near the band bottom the lattice is a continuum of mass hbar^2/(2 J a^2) (mottle.Lattice), so a
-    # wide trap's ground state is -2J + hbar omega / 2 up to O((omega / J)) lattice corrections.
+    # wide trap's ground state is -2J + hbar omega / 2 up to O((omega / J)) lattice corrections
+    # (common practice: the effective-mass limit of the tight-binding band).
     grid = mo.Grid(512, 512.0)
     system = mo.System(grid, model=mo.Lattice(hopping=1.0), potential=mo.Harmonic(0.01))
     state = mo.ground_state(system)

@@ -197,6 +197,22 @@ def test_the_kicked_rotor_localizes_dynamically():
     assert 1 / 2.5 < ratio < 2.5, fit
 
 
+def test_momentum_tails_fit_the_decay_and_warn_where_the_tails_are_rounding_noise():
+    # A mean distribution exp(-2|n|/l) on the rotor's grid (n = k, length 2 pi), l = 3 states.
+    from types import SimpleNamespace
+
+    points = 256
+    x = np.arange(points) * TWO_PI / points
+    k = np.fft.fftshift(2 * np.pi * np.fft.fftfreq(points, TWO_PI / points))
+    tails = SimpleNamespace(x=x, k=k, momentum=np.exp(-2 * np.abs(k) / 3.0)[None, :])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", mo.UnderResolvedWarning)
+        fit = mo.momentum_tails(tails, (5.0, 60.0))  # down to exp(-40) of the peak: no warning
+    assert abs(fit.localization_length - 3.0) < 1e-9
+    with pytest.warns(mo.UnderResolvedWarning, match="rounding noise"):
+        mo.momentum_tails(tails, (5.0, 120.0))  # down to exp(-80), past double precision's exp(-64)
+
+
 def test_random_phases_and_quasimomenta_are_per_realization_and_thread_independent():
     # Realization r of the ensemble is propagate(seed, index=r); threads change no bit.
     system = rotor(128, 1.0, 3.0, quasimomentum=mo.Uniform(0.0, 1.0), phase=mo.Uniform(0.0, TWO_PI))

@@ -231,7 +231,7 @@ def particles(
     }
 
 
-def table_profile(values) -> _Profile:
+def table_profile(values: np.ndarray) -> _Profile:
     """A time-dependent term's ``V(x)`` given at the grid points."""
     return {"kind": "table", "values": np.ascontiguousarray(values, dtype=np.float64)}
 

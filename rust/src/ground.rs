@@ -493,16 +493,14 @@ fn polish(
     let mut diagonal = vec![0.0; n];
     let mut cg_total = 0;
     let mut slow = 0;
+    // Every way out of the loop ends here: converged, at the rounding floor, or not (yet) in
+    // the basin, judged on the last accepted state.
+    let mut iterations = NEWTON_ITERATIONS;
     for iteration in 0..NEWTON_ITERATIONS {
         let relative = measure.relative();
         if relative <= tolerance {
-            return Ok(Polish {
-                psi,
-                measure,
-                iterations: iteration,
-                cg: cg_total,
-                end: PolishEnd::Converged,
-            });
+            iterations = iteration;
+            break;
         }
         let alpha = measure.scale;
         for (m, &t) in preconditioner.iter_mut().zip(&work.problem.kinetic) {
@@ -569,13 +567,8 @@ fn polish(
             return Err(CoreError::Interrupted);
         }
         if delta.iter().all(|&d| d == 0.0) {
-            return Ok(Polish {
-                psi,
-                measure,
-                iterations: iteration,
-                cg: cg_total,
-                end: PolishEnd::Failed,
-            });
+            iterations = iteration;
+            break;
         }
         // Backtrack on the residual.
         let mut length = 1.0;
@@ -593,18 +586,8 @@ fn polish(
             length *= 0.5;
         }
         let Some(candidate) = accepted else {
-            let end = if measure.residual <= FLOOR_MARGIN * floor {
-                PolishEnd::Floor
-            } else {
-                PolishEnd::Failed
-            };
-            return Ok(Polish {
-                psi,
-                measure,
-                iterations: iteration,
-                cg: cg_total,
-                end,
-            });
+            iterations = iteration;
+            break;
         };
         // Quadratic convergence more than halves the residual; twice less in a row is a stall.
         slow = if candidate.residual > 0.5 * measure.residual {
@@ -616,31 +599,21 @@ fn polish(
         r.copy_from_slice(&work.r);
         measure = candidate;
         if slow >= 2 {
-            let end = if measure.relative() <= tolerance {
-                PolishEnd::Converged
-            } else if measure.residual <= FLOOR_MARGIN * floor {
-                PolishEnd::Floor
-            } else {
-                PolishEnd::Failed
-            };
-            return Ok(Polish {
-                psi,
-                measure,
-                iterations: iteration + 1,
-                cg: cg_total,
-                end,
-            });
+            iterations = iteration + 1;
+            break;
         }
     }
     let end = if measure.relative() <= tolerance {
         PolishEnd::Converged
+    } else if measure.residual <= FLOOR_MARGIN * floor {
+        PolishEnd::Floor
     } else {
         PolishEnd::Failed
     };
     Ok(Polish {
         psi,
         measure,
-        iterations: NEWTON_ITERATIONS,
+        iterations,
         cg: cg_total,
         end,
     })

@@ -14,12 +14,13 @@ compare contrasts measured with the same windows.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _checks
-from ..errors import InvalidParameterError, InvalidTypeError
+from .. import _checks, limits
+from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 
 
 @dataclass(frozen=True)
@@ -162,4 +163,14 @@ def momentum_tails(result, window, snapshot: int = -1):
             f"window ({low:g}, {high:g}) holds {np.count_nonzero(chosen)} momentum states with density > 0; "
             "it needs at least 3"
         )
-    return line_fit(n[chosen], np.log(density[chosen]))
+    logs = np.log(density[chosen])
+    peak = float(np.log(np.max(density)))
+    if float(np.min(logs)) < peak + limits.LOG_NOISE_FLOOR:
+        warnings.warn(
+            f"the window reaches ln<|phi|^2> = {float(np.min(logs)):.1f}, more than "
+            f"{-limits.LOG_NOISE_FLOOR:g} below the peak's {peak:.1f}: split-step densities there are "
+            "rounding noise; move the window inward",
+            UnderResolvedWarning,
+            stacklevel=2,
+        )
+    return line_fit(n[chosen], logs)

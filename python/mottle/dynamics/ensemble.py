@@ -87,6 +87,14 @@ class _Fold:
     def transmission(self) -> np.ndarray:
         return np.concatenate(self.samples["transmission"]) if self.samples["transmission"] else np.zeros(0)
 
+    def reached(self, target_stderr: float | None) -> bool:
+        """Whether the transmission's standard error is below ``target_stderr`` (None: never).
+
+        The stopping rule of ``target_stderr``, checked after every chunk from two realizations
+        on, in process and on a cluster alike.
+        """
+        return target_stderr is not None and self.count >= 2 and stderr(self.transmission()) < target_stderr
+
 
 @dataclass(frozen=True, eq=False)
 class EnsembleResult:
@@ -257,11 +265,11 @@ def _finish(
 
 def _bin_shift(grid) -> float:
     """Where the momentum profile's bins sit: the fixed twist, or the bins' centres for a drawn one."""
+    from ..specs.packets import is_drawn
+
     if not grid.twisted:
         return 0.0
-    if isinstance(grid.quasimomentum, float):
-        return grid.shift()
-    return grid.shift(0.5)
+    return grid.shift(0.5) if is_drawn(grid.quasimomentum) else grid.shift()
 
 
 @dataclass(frozen=True, eq=False)
@@ -401,18 +409,16 @@ def ensemble(
             fold.add(chunk)
             if progress is not None:
                 progress(fold.count, realizations)
-            if target_stderr is not None and fold.count >= 2:
-                transmission = fold.transmission()
-                if stderr(transmission) < target_stderr:
-                    return _finish(
-                        fold,
-                        prepared.seed,
-                        prepared.times,
-                        system,
-                        prepared.modes_info,
-                        prepared.step,
-                        prepared.duration,
-                    )
+            if fold.reached(target_stderr):
+                return _finish(
+                    fold,
+                    prepared.seed,
+                    prepared.times,
+                    system,
+                    prepared.modes_info,
+                    prepared.step,
+                    prepared.duration,
+                )
         start += count
     return _finish(
         fold, prepared.seed, prepared.times, system, prepared.modes_info, prepared.step, prepared.duration

@@ -485,13 +485,13 @@ def propagate(
 
 
 def _fixed_drive_only(system: System) -> None:
-    from ..specs.packets import Normal, Uniform
+    from ..specs.packets import is_drawn
     from ..specs.potentials import time_dependent_terms
 
-    drawn = [isinstance(system.grid.quasimomentum, (Uniform, Normal))]
+    drawn = [is_drawn(system.grid.quasimomentum)]
     for term in time_dependent_terms(system.potential):
-        drawn.append(isinstance(getattr(term, "phase", 0.0), (Uniform, Normal)))
-        drawn.append(isinstance(getattr(term.potential, "phase", 0.0), (Uniform, Normal)))
+        drawn.append(is_drawn(getattr(term, "phase", 0.0)))
+        drawn.append(is_drawn(getattr(term.potential, "phase", 0.0)))
     if any(drawn):
         raise InvalidParameterError(
             "the reference propagator takes fixed phases and quasimomenta only: fix them (the core draws)"

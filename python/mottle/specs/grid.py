@@ -94,13 +94,17 @@ class Grid:
     @property
     def twisted(self) -> bool:
         """Whether the boundary is twisted (a nonzero or drawn quasimomentum)."""
-        return not (isinstance(self.quasimomentum, float) and self.quasimomentum == 0.0)
+        from .packets import is_drawn
+
+        return is_drawn(self.quasimomentum) or self.quasimomentum != 0.0
 
     def shift(self, beta: float | None = None) -> float:
         """``2 pi beta / length``, the twist's shift of the wavenumbers (``beta`` by default the grid's
         fixed quasimomentum; a drawn one must be given)."""
+        from .packets import is_drawn
+
         if beta is None:
-            if not isinstance(self.quasimomentum, float):
+            if is_drawn(self.quasimomentum):
                 raise InvalidParameterError("a drawn quasimomentum has no single shift: pass beta")
             beta = self.quasimomentum
         return 2.0 * np.pi * float(beta) / self.length

@@ -135,6 +135,9 @@ class Uniform:
     def extremes(self) -> tuple[float, float]:
         return self.low, self.high
 
+    def middle(self) -> float:
+        return 0.5 * (self.low + self.high)
+
 
 @dataclass(frozen=True)
 class Normal:
@@ -154,9 +157,17 @@ class Normal:
     def extremes(self) -> tuple[float, float]:
         return self.mean - 6.0 * self.std, self.mean + 6.0 * self.std
 
+    def middle(self) -> float:
+        return self.mean
+
+
+def is_drawn(value) -> bool:
+    """Whether ``value`` is drawn per realization (a :class:`Uniform` or :class:`Normal`), not fixed."""
+    return isinstance(value, (Uniform, Normal))
+
 
 def _extremes(value) -> tuple[float, ...]:
-    return value.extremes() if isinstance(value, (Uniform, Normal)) else (float(value),)
+    return value.extremes() if is_drawn(value) else (float(value),)
 
 
 @dataclass(frozen=True)
@@ -177,7 +188,7 @@ class RandomPacket:
     def __post_init__(self) -> None:
         for name in ("center", "wavenumber", "width"):
             value = getattr(self, name)
-            if not isinstance(value, (Uniform, Normal)):
+            if not is_drawn(value):
                 object.__setattr__(self, name, _checks.real(f"packet {name}", value))
         if min(_extremes(self.width)) <= 0.0:
             raise InvalidParameterError(

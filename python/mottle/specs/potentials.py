@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -19,6 +19,11 @@ from ..errors import InvalidParameterError, InvalidTypeError
 from .grid import Grid
 from .kinds import Kinded
 from .models import Continuum, Lattice
+from .packets import is_drawn
+
+if TYPE_CHECKING:
+    from .._core import _Profile
+    from .models import Model
 
 
 class Potential(Kinded):
@@ -141,17 +146,7 @@ class Tabulated(Potential):
 
 def _phase(name: str, value):
     """A phase: a number, or a :class:`~mottle.Uniform` / :class:`~mottle.Normal` draw per realization."""
-    from .packets import Normal, Uniform
-
-    if isinstance(value, (Uniform, Normal)):
-        return value
-    return _checks.real(name, value)
-
-
-def _is_drawn(value) -> bool:
-    from .packets import Normal, Uniform
-
-    return isinstance(value, (Uniform, Normal))
+    return value if is_drawn(value) else _checks.real(name, value)
 
 
 @dataclass(frozen=True)
@@ -177,7 +172,7 @@ class Cosine(Potential):
         object.__setattr__(self, "phase", _phase("phase", self.phase))
 
     def values(self, grid, model):
-        if _is_drawn(self.phase):
+        if is_drawn(self.phase):
             raise InvalidParameterError(
                 f"Cosine phase {self.phase!r} is drawn per realization: use a number, or make the cosine "
                 "the profile of Kicked, Modulated or Switched"
@@ -185,10 +180,10 @@ class Cosine(Potential):
         return self.amplitude * np.cos(self.wavenumber * grid.x + float(self.phase))
 
     def validate(self, grid):
-        if _is_drawn(self.phase):
+        if is_drawn(self.phase):
             self.values(grid, None)
 
-    def profile_request(self, grid, model):
+    def profile_request(self, grid: Grid, model: Model) -> _Profile:
         """The core's description of this profile (a drawn phase is drawn there, per realization)."""
         from .. import _requests
 
@@ -227,13 +222,13 @@ class TimeDependent(Potential):
             dtype=float,
         )
 
-    def profile_request(self, grid, model):
+    def profile_request(self, grid: Grid, model: Model) -> _Profile:
         """The core's description of ``V(x)``: a drawn cosine by its parameters, else a table."""
         from .. import _requests
 
         if isinstance(self.potential, Cosine):
             return self.potential.profile_request(grid, model)
-        if any(isinstance(t, Cosine) and _is_drawn(t.phase) for t in _terms(self.potential)):
+        if any(isinstance(t, Cosine) and is_drawn(t.phase) for t in _terms(self.potential)):
             raise InvalidParameterError(
                 f"{type(self).__name__}: a drawn Cosine phase works for a lone Cosine profile; "
                 "give each drawn cosine its own time-dependent term"
@@ -248,10 +243,9 @@ class TimeDependent(Potential):
 
 
 def _static_values(term: Potential, grid, model) -> np.ndarray:
-    if isinstance(term, Cosine) and _is_drawn(term.phase):
+    if isinstance(term, Cosine) and is_drawn(term.phase):
         phase: Any = term.phase
-        mean = phase.mean if hasattr(phase, "mean") else 0.5 * (phase.low + phase.high)
-        return term.amplitude * np.cos(term.wavenumber * grid.x + mean)
+        return term.amplitude * np.cos(term.wavenumber * grid.x + phase.middle())
     return term.values(grid, model)
 
 

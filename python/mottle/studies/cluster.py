@@ -181,15 +181,8 @@ def _distributed():
     return dask, distributed
 
 
-def task_size(points: list[StudyPoint], slots: int, threads_per_task: int) -> int:
-    """Realizations per task: a multiple of CHUNK, at least one chunk per thread of the task."""
-    from ..dynamics.ensemble import CHUNK
-
-    chunks = sum(math.ceil(point.realizations / CHUNK) for point in points)
-    return _piece_size(chunks, slots, threads_per_task)
-
-
 def _piece_size(chunks: int, slots: int, threads_per_task: int) -> int:
+    """Realizations per piece: a multiple of CHUNK, at least one chunk per thread of the task."""
     from ..dynamics.ensemble import CHUNK
 
     per_task = max(threads_per_task, math.ceil(chunks / (TASKS_PER_WORKER * max(slots, 1))))
@@ -270,8 +263,6 @@ class _Assembly:
 
     def add(self, output: TaskOutput) -> int:
         """Fold what is now in order; returns the realizations folded."""
-        from ..analysis.statistics import stderr
-
         self.waiting[output.partial.start] = output
         before = self.fold.count
         while not self.done and self.fold.next_start in self.waiting:
@@ -283,12 +274,7 @@ class _Assembly:
             self.hosts.add(item.host)
             for chunk in item.partial.chunks:
                 self.fold.add(chunk)
-                # The rule of mottle.ensemble: checked after every chunk, from two realizations on.
-                if (
-                    self.target is not None
-                    and self.fold.count >= 2
-                    and stderr(self.fold.transmission()) < self.target
-                ):
+                if self.fold.reached(self.target):
                     self.done = True
                     break
             if self.fold.count >= self.point.realizations:
@@ -519,4 +505,4 @@ def run_on_cluster(
         raise
 
 
-__all__ = ["Work", "connect", "run_on_cluster", "run_pieces", "run_task", "task_size"]
+__all__ = ["Work", "connect", "run_on_cluster", "run_pieces", "run_task"]
