@@ -84,7 +84,7 @@ def client():
 
 
 def fresh_store(tmp_path, name):
-    path = tmp_path / f"{name}-{next(COUNTER)}.h5"
+    path = tmp_path / f"{name}-{next(COUNTER)}.mottle"
     STORES[name] = path
     return (path,), {}
 
@@ -154,7 +154,7 @@ def small_study(tmp_path_factory):
     stops = [float(v) for v in np.round(np.linspace(5.0, 25.0, SMALL_POINTS // side), 6)]
     root = tmp_path_factory.mktemp("small")
     began = time.perf_counter()
-    loaded = parse_study(SMALL % (rms, stops), "small.toml", root=root, store=root / "small.h5")
+    loaded = parse_study(SMALL % (rms, stops), "small.toml", root=root, store=root / "small.mottle")
     TIMINGS[f"study of {len(loaded.points)} points: loading (once)"] = time.perf_counter() - began
     return loaded
 

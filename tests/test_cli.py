@@ -102,9 +102,9 @@ def workspace(tmp_path_factory):
 @pytest.fixture(scope="module")
 def in_process(workspace):
     """The reference: the whole study in one uninterrupted in-process run."""
-    result = mottle("run", workspace / "study.toml", "--store", workspace / "in-process.h5", "--threads", 2)
+    result = mottle("run", workspace / "study.toml", "--store", workspace / "in-process.mottle", "--threads", 2)
     assert result.returncode == 0, result.stderr
-    return workspace / "in-process.h5", result
+    return workspace / "in-process.mottle", result
 
 
 def test_in_process_run_prints_one_line_per_point_and_fills_the_store(in_process):
@@ -135,7 +135,7 @@ def test_a_cluster_that_loses_a_worker_gives_the_same_numbers(workspace, in_proc
         )
     with cluster, Client(cluster) as client:
         before = client.run(os.getpid)
-        store = workspace / "cluster.h5"
+        store = workspace / "cluster.mottle"
         run = start(
             "run", workspace / "study.toml", "--store", store, "--scheduler", cluster.scheduler_address
         )
@@ -164,7 +164,7 @@ def test_a_cluster_that_loses_a_worker_gives_the_same_numbers(workspace, in_proc
 
 
 def test_a_killed_driver_resumes_to_the_same_numbers(workspace, in_process):
-    store = workspace / "resumed.h5"
+    store = workspace / "resumed.mottle"
     # One thread (the numbers do not depend on it): the points take long enough that the first
     # commit comes before the last point, on a fast machine too.
     run = start("run", workspace / "study.toml", "--store", store, "--threads", 1)
@@ -192,7 +192,7 @@ def test_a_killed_driver_resumes_to_the_same_numbers(workspace, in_process):
 
 
 def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, in_process):
-    store = workspace / "interrupted.h5"
+    store = workspace / "interrupted.mottle"
     run = start(
         "run",
         workspace / "study.toml",
@@ -305,11 +305,11 @@ def test_report_draws_the_stored_numbers(workspace, in_process):
 
 
 def test_dry_run_lists_points_and_runs_nothing(workspace):
-    result = mottle("run", workspace / "study.toml", "--store", workspace / "dry.h5", "--dry-run")
+    result = mottle("run", workspace / "study.toml", "--store", workspace / "dry.mottle", "--dry-run")
     assert result.returncode == 0
     assert "valid, 6 points, 576 realizations in all" in result.stdout
     assert "point 6: rms=0.3, stop=30 (seed " in result.stdout
-    assert not (workspace / "dry.h5").exists()
+    assert not (workspace / "dry.mottle").exists()
 
 
 def test_errors_are_one_line_without_traceback_unless_debug(workspace, in_process):
@@ -330,19 +330,18 @@ def test_errors_are_one_line_without_traceback_unless_debug(workspace, in_proces
     assert refused.returncode == 1
     assert "different study" in refused.stderr and "run.realizations: 96 != 64" in refused.stderr
 
-    notes = workspace / "notes.h5"
+    notes = workspace / "notes.mottle"
     notes.write_text("not a store")
     for args in (("run", workspace / "study.toml", "--store", notes), ("report", notes)):
         result = mottle(*args)
         assert result.returncode == 1 and "Traceback" not in result.stderr
         assert (
             result.stderr.strip()
-            == f"mottle: error: {notes} is not an HDF5 file, so not a mottle results store "
-            "(it was not overwritten)"
+            == f"mottle: error: {notes} is not a mottle results store (it was not overwritten)"
         )
     assert notes.read_text() == "not a store"
 
-    result = mottle("report", workspace / "absent.h5")
+    result = mottle("report", workspace / "absent.mottle")
     assert result.returncode == 1 and "no such results store" in result.stderr
     usage = mottle("run", workspace / "study.toml", "--workers", 2, "--scheduler", "tcp://127.0.0.1:1")
     assert usage.returncode == 2 and "not allowed with argument" in usage.stderr
@@ -394,9 +393,9 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     elapsed = time.monotonic() - began
     assert result.returncode == 0, result.stderr
     assert elapsed < 120
-    for line in (f"study:   {tmp_path / 'demo' / 'demo.toml'}", f"store:   {tmp_path / 'demo' / 'demo.h5'}"):
+    for line in (f"study:   {tmp_path / 'demo' / 'demo.toml'}", f"store:   {tmp_path / 'demo' / 'demo.mottle'}"):
         assert line in result.stdout
-    store = mo.open_store(tmp_path / "demo" / "demo.h5")
+    store = mo.open_store(tmp_path / "demo" / "demo.mottle")
     assert store.complete and len(store.points) == 12
     assert mo.load_study(tmp_path / "demo" / "demo.toml").differences(store.canonical) == []
     figures = tmp_path / "demo" / "figures"

@@ -129,9 +129,9 @@ def test_run_study_with_target_stderr_stores_the_same_numbers_both_ways(client, 
     base = small_study([0.3], realizations=320)
     target, chunks = stopping_target(base.points[0])
     stopping = small_study([0.3], realizations=320, target=target)
-    mo.run_study(stopping, tmp_path / "here.h5", progress=False, threads=1)
-    mo.run_study(stopping, tmp_path / "there.h5", scheduler=client, progress=False, threads=1)
-    here, there = mo.open_store(tmp_path / "here.h5").points, mo.open_store(tmp_path / "there.h5").points
+    mo.run_study(stopping, tmp_path / "here.mottle", progress=False, threads=1)
+    mo.run_study(stopping, tmp_path / "there.mottle", scheduler=client, progress=False, threads=1)
+    here, there = mo.open_store(tmp_path / "here.mottle").points, mo.open_store(tmp_path / "there.mottle").points
     assert [p.count for p in here] == [p.count for p in there] == [chunks * mo.CHUNK]
     same(here[0].result, there[0].result)
 
@@ -193,12 +193,12 @@ def test_in_process_points_are_committed_in_batches_by_time(tmp_path, monkeypatc
 
     monkeypatch.setattr(StoreWriter, "commit", commit)
     small = small_study(np.round(np.linspace(0.05, 0.5, 12), 4))
-    mo.run_study(small, tmp_path / "batched.h5", progress=False, threads=1)
+    mo.run_study(small, tmp_path / "batched.mottle", progress=False, threads=1)
     assert sum(commits) == 12 and len(commits) < 12
-    assert len(mo.open_store(tmp_path / "batched.h5").points) == 12
+    assert len(mo.open_store(tmp_path / "batched.mottle").points) == 12
     commits.clear()
     monkeypatch.setattr(runner, "COMMIT_SECONDS", 0.0)
-    mo.run_study(small, tmp_path / "each.h5", progress=False, threads=1)
+    mo.run_study(small, tmp_path / "each.mottle", progress=False, threads=1)
     assert commits == [1] * 12
 
 
@@ -309,6 +309,6 @@ def test_points_finished_before_a_failing_one_are_saved(tmp_path):
     points = (*small.points[:2], changed(small.points[2], duration=-1.0), small.points[3])
     failing = dataclasses.replace(small, points=points)
     with pytest.raises(mo.MottleError, match=r"point 3 \(.*rms=0.3\) failed"):
-        mo.run_study(failing, tmp_path / "partial.h5", progress=False, threads=1)
+        mo.run_study(failing, tmp_path / "partial.mottle", progress=False, threads=1)
     # The two finished points were still waiting for their batch's commit when point 3 failed.
-    assert [p.index for p in mo.open_store(tmp_path / "partial.h5").points] == [0, 1]
+    assert [p.index for p in mo.open_store(tmp_path / "partial.mottle").points] == [0, 1]

@@ -516,7 +516,7 @@ def test_a_zipped_study_runs_resumes_and_refuses_its_cartesian_twin(tmp_path):
         '\n[[sweep.zip]]\n"system.disorder.0.stop" = [10.0, 20.0]\n"packet.wavenumber" = [1.0, 1.3]\n'
     )
     study = parse_study(text, "k.toml")
-    store = tmp_path / "zip.h5"
+    store = tmp_path / "zip.mottle"
     stored = mo.run_study(study, store, progress=False, threads=1)
     assert sorted(point.index for point in stored.points) == [0, 1]
     direct = mo.ensemble(*study.points[1].build()[:2], threads=1, **study.points[1].run_arguments())

@@ -1,4 +1,5 @@
-"""The ``mottle`` command: run studies, report on their stores, run the demo and the validation checks."""
+"""The ``mottle`` command: run studies, report on their stores, convert old stores, run the demo and the
+validation checks."""
 
 from __future__ import annotations
 
@@ -9,6 +10,9 @@ import traceback
 import warnings
 from pathlib import Path
 
+SUFFIX = ".mottle"
+"""The suffix of a results store's file name (as :data:`mottle.studies.store.SUFFIX`)."""
+
 EXIT_FAILED, EXIT_USAGE, EXIT_INTERRUPTED = 1, 2, 130
 
 MAIN_HELP = """\
@@ -16,9 +20,10 @@ Many-run split-step Fourier propagation for wave transport in disorder.
 
 examples:
   mottle demo --out demo/                 run the built-in study and draw its figures
-  mottle run study.toml --store r.h5      run (or resume) a study in this process
+  mottle run study.toml --store r.mottle  run (or resume) a study in this process
   mottle run study.toml --workers 4       the same on a local Dask cluster of 4 processes
-  mottle report r.h5 --out figures/       figures (PNG) and a summary table of a store
+  mottle report r.mottle --out figures/   figures (PNG) and a summary table of a store
+  mottle convert old.h5 new.mottle        copy a format-1 (HDF5) store into a format-2 store
   mottle check                            compare the propagators with published results
 """
 
@@ -29,8 +34,8 @@ numbers equal those of an uninterrupted run bit for bit. Ctrl-C keeps the points
 already finished.
 
 examples:
-  mottle run study.toml                          store next to the study, study.h5
-  mottle run study.toml --store results.h5 --threads 2
+  mottle run study.toml                          store next to the study, study.mottle
+  mottle run study.toml --store results.mottle --threads 2
   mottle run study.toml --workers 4 --threads 1  4 local worker processes, 1 thread each
   mottle run study.toml --scheduler tcp://10.0.0.5:8786
   mottle run study.toml --dry-run                validate and list the points only
@@ -43,8 +48,16 @@ localization length when the study sweeps a disorder region, the mean density
 (log scale) and the mean momentum distribution at the snapshots.
 
 examples:
-  mottle report results.h5                 figures in results-report/
-  mottle report results.h5 --out figures/ --csv table.csv
+  mottle report results.mottle             figures in results-report/
+  mottle report results.mottle --out figures/ --csv table.csv
+"""
+
+CONVERT_HELP = """\
+Copy every point of a format-1 results store (one HDF5 file, written by older
+versions of mottle) into a new store of the current format, exactly. Needs h5py.
+
+examples:
+  mottle convert results.h5 results.mottle
 """
 
 DEMO_HELP = """\
@@ -92,7 +105,9 @@ def _parser() -> argparse.ArgumentParser:
         "run", help="run or resume a study", description=RUN_HELP, formatter_class=formatter, parents=[debug]
     )
     run.add_argument("study", metavar="STUDY.toml", help="the study file")
-    run.add_argument("--store", metavar="RESULTS.h5", help="results store (default: the study's name, .h5)")
+    run.add_argument(
+        "--store", metavar="RESULTS.mottle", help="results store (default: the study's name, .mottle)"
+    )
     where = run.add_mutually_exclusive_group()
     where.add_argument(
         "--workers", type=_positive_int, metavar="N", help="start a local Dask cluster of N processes"
@@ -118,9 +133,19 @@ def _parser() -> argparse.ArgumentParser:
         formatter_class=formatter,
         parents=[debug],
     )
-    report.add_argument("store", metavar="RESULTS.h5", help="a results store written by mottle run")
+    report.add_argument("store", metavar="RESULTS.mottle", help="a results store written by mottle run")
     report.add_argument("--out", metavar="DIR", help="directory for the figures (default: STORE-report/)")
     report.add_argument("--csv", metavar="FILE", help="also write the tidy table (one row per point) as CSV")
+
+    convert = commands.add_parser(
+        "convert",
+        help="convert a format-1 (HDF5) store to the current format",
+        description=CONVERT_HELP,
+        formatter_class=formatter,
+        parents=[debug],
+    )
+    convert.add_argument("old", metavar="OLD.h5", help="a format-1 store (HDF5, written by earlier mottle)")
+    convert.add_argument("new", metavar="NEW.mottle", help="the format-2 store to write (must not exist)")
 
     demo = commands.add_parser(
         "demo",
@@ -168,7 +193,7 @@ def _command_run(args) -> int:
     from ..studies.runner import run_study
     from ..studies.study import load_study
 
-    store = Path(args.store) if args.store else Path(args.study).with_suffix(".h5")
+    store = Path(args.store) if args.store else Path(args.study).with_suffix(SUFFIX)
     study = load_study(args.study, store)
     if args.dry_run:
         print(f"{args.study}: valid, {len(study.points)} points, {study.realizations} realizations in all")
@@ -233,6 +258,14 @@ def _command_report(args) -> int:
     return 0
 
 
+def _command_convert(args) -> int:
+    from ..studies.store import convert
+
+    store = convert(args.old, args.new)
+    print(f"converted {args.old}: {len(store.points)} of {store.total} points in {args.new}")
+    return 0
+
+
 def _command_demo(args) -> int:
     from .demo import run_demo
 
@@ -273,7 +306,13 @@ class _UsageError(Exception):
     pass
 
 
-COMMANDS = {"run": _command_run, "report": _command_report, "demo": _command_demo, "check": _command_check}
+COMMANDS = {
+    "run": _command_run,
+    "report": _command_report,
+    "convert": _command_convert,
+    "demo": _command_demo,
+    "check": _command_check,
+}
 
 
 def main(argv=None) -> int:

@@ -119,7 +119,7 @@ def barrier_warm_up() -> list[str]:
 def run_demo(
     out: str | Path = "mottle-demo", workers=None, threads=None, progress: bool = True
 ) -> DemoOutcome:
-    """Write the demo study to ``out``, run it into ``out/demo.h5`` (resuming), draw ``out/figures``."""
+    """Write the demo study to ``out``, run it into ``out/demo.mottle`` (resuming), draw ``out/figures``."""
     from ..studies.runner import run_study
     from ..studies.study import load_study
     from .report import report
@@ -128,7 +128,7 @@ def run_demo(
     out.mkdir(parents=True, exist_ok=True)
     study_path = out / "demo.toml"
     study_path.write_text(STUDY, encoding="utf-8")
-    store_path = out / "demo.h5"
+    store_path = out / "demo.mottle"
     study = load_study(study_path)
     began = time.perf_counter()
     store = run_study(study, store_path, workers=workers, threads=threads, progress=progress)

@@ -2,7 +2,12 @@
 
 Each ``*_figure`` function returns a ``matplotlib.figure.Figure`` whose lines
 carry exactly the stored numbers, so what is drawn can be checked against the
-store; :func:`report` saves them as PNG next to a plain-text summary.
+store; :func:`report` saves them as PNG next to a plain-text summary. The
+scalar figures and the summary are built on :meth:`Store.table` (one row per
+point, swept values as numbers or labels, so a swept distribution or packet
+spec groups by its label); the profile figures on :meth:`Store.dataset`, which
+reads only the points drawn. :func:`figures` lists what is drawn, one
+``*_figure`` function per figure.
 
 Localization length: the amplitude convention (docs/validation.md), ``<ln T> = a - 2 L / xi``
 for a slab of length L much longer than xi (Anderson, Thouless, Abrahams &
@@ -12,6 +17,7 @@ the standard errors of ``<ln T>`` as weights.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,21 +45,27 @@ def _numeric(values) -> bool:
     return all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values)
 
 
-def _groups(store: Store, fixed: list[str]):
-    """Points grouped by their values of the ``fixed`` paths, in order of first appearance."""
-    groups: dict[tuple, list] = {}
-    for point in store.points:
-        key = tuple(_hashable(point.parameters.get(path)) for path in fixed)
-        groups.setdefault(key, []).append(point)
-    return groups
+def _columns(store: Store) -> dict[str, str]:
+    """The table column of each swept path (its short name)."""
+    return short_names(store.sweep)
 
 
-def _hashable(value):
-    return tuple(value) if isinstance(value, list) else value
+def _groups(table, columns: list[str]) -> dict[tuple, object]:
+    """Rows of ``table`` grouped by their values in ``columns``, in order of first appearance.
+
+    Swept values are numbers or labels in the table (a distribution or packet spec as its label
+    string), so every key is hashable."""
+    if not columns:
+        return {(): table}
+    keys = list(zip(*(table[column].tolist() for column in columns), strict=True))
+    groups: dict[tuple, list[int]] = {}
+    for row, key in enumerate(keys):
+        groups.setdefault(key, []).append(row)
+    return {key: table.iloc[rows] for key, rows in groups.items()}
 
 
-def _group_label(paths: list[str], key: tuple, names: dict) -> str:
-    return point_label(dict(zip(paths, key, strict=True)), names, empty="all points")
+def _group_label(columns: list[str], key: tuple) -> str:
+    return ", ".join(f"{c}={format_value(v)}" for c, v in zip(columns, key, strict=True)) or "all points"
 
 
 def swept_numbers(store: Store) -> list[str]:
@@ -61,28 +73,30 @@ def swept_numbers(store: Store) -> list[str]:
     return [path for path, values in store.sweep.items() if _numeric(values) and len(values) > 1]
 
 
-def transmission_figure(store: Store, parameter: str):
+def transmission_figure(store: Store, parameter: str, table=None):
     """``<T>`` with its standard error against ``parameter``, one line per value of the other swept keys.
 
-    The typical transmission ``exp<ln T>`` is drawn dashed in the same colour.
+    The typical transmission ``exp<ln T>`` is drawn dashed in the same colour. Built on
+    :meth:`Store.table <mottle.Store.table>` (pass ``table`` to reuse one).
     """
-    names = short_names(store.sweep)
-    others = [path for path in store.sweep if path != parameter]
+    table = store.table() if table is None else table
+    names = _columns(store)
+    column = names[parameter]
+    others = [names[path] for path in store.sweep if path != parameter]
     figure, (ax,) = _figure()
-    for number, (key, points) in enumerate(_groups(store, others).items()):
-        points = sorted(points, key=lambda p: p.parameters[parameter])
-        x = np.array([p.parameters[parameter] for p in points], dtype=float)
-        stats = [p.result.transmission for p in points]
-        mean = np.array([s.mean for s in stats])
-        stderr = np.array([s.stderr for s in stats])
-        label = _group_label(others, key, names) if number < MAX_LEGEND else None
+    for number, (key, rows) in enumerate(_groups(table, others).items()):
+        rows = rows.sort_values(column, kind="stable")
+        x = rows[column].to_numpy(dtype=float)
+        mean = rows["transmission_mean"].to_numpy()
+        stderr = rows["transmission_stderr"].to_numpy()
+        label = _group_label(others, key) if number < MAX_LEGEND else None
         drawn = ax.errorbar(x, mean, yerr=stderr, marker="o", capsize=3, label=label)
-        typical = np.array([s.typical for s in stats])
+        typical = np.exp(rows["transmission_log_mean"].to_numpy())
         if np.any(np.isfinite(typical)):
             ax.plot(x, typical, linestyle="--", color=drawn.lines[0].get_color(), alpha=0.7)
-    ax.set_xlabel(names[parameter])
+    ax.set_xlabel(column)
     ax.set_ylabel("transmission  <T> (solid), exp<ln T> (dashed)")
-    ax.set_title(f"{store.title}: transmission against {names[parameter]}")
+    ax.set_title(f"{store.title}: transmission against {column}")
     if store.sweep and len(store.sweep) > 1:
         ax.legend(fontsize="small")
     return figure
@@ -100,8 +114,23 @@ def length_path(store: Store) -> tuple[int, list[str]] | None:
 
 
 def sample_length(point, entry: int) -> float:
+    """The length ``stop - start`` of disorder entry ``entry`` of a stored point."""
     disorder = point.resolved["system"]["disorder"][entry]
     return float(disorder["stop"]) - float(disorder["start"])
+
+
+def sample_lengths(store: Store, table, entry: int) -> np.ndarray:
+    """``stop - start`` of disorder entry ``entry`` for each row of ``table`` (swept or fixed ends)."""
+    names = _columns(store)
+    base = store.canonical["system"]["disorder"][entry]
+    ends = {}
+    for end in ("start", "stop"):
+        path = f"system.disorder.{entry}.{end}"
+        if path in store.sweep:
+            ends[end] = table[names[path]].to_numpy(dtype=float)
+        else:
+            ends[end] = np.full(len(table), float(base[end]))
+    return ends["stop"] - ends["start"]
 
 
 @dataclass
@@ -129,33 +158,36 @@ def fit_series(lengths, log_transmission, log_stderr, label: str = "") -> Length
     return LengthSeries(label, x, y, s, line_fit(x, y, s if weighted else None))
 
 
-def localization_fits(store: Store) -> list[LengthSeries]:
+def localization_fits(store: Store, table=None) -> list[LengthSeries]:
     """One fit of ``<ln T>`` against the sample length per value of the other swept keys."""
     found = length_path(store)
     if found is None:
         return []
     entry, paths = found
-    names = short_names(store.sweep)
-    others = [path for path in store.sweep if path not in paths]
+    table = store.table() if table is None else table
+    if not len(table):
+        return []
+    table = table.assign(_length=sample_lengths(store, table, entry))
+    names = _columns(store)
+    others = [names[path] for path in store.sweep if path not in paths]
     fits = []
-    for key, points in _groups(store, others).items():
-        points = sorted(points, key=lambda p: sample_length(p, entry))
-        stats = [p.result.transmission for p in points]
+    for key, rows in _groups(table, others).items():
+        rows = rows.sort_values("_length", kind="stable")
         fit = fit_series(
-            [sample_length(p, entry) for p in points],
-            [s.log_mean for s in stats],
-            [s.log_stderr for s in stats],
-            _group_label(others, key, names),
+            rows["_length"].to_numpy(),
+            rows["transmission_log_mean"].to_numpy(),
+            rows["transmission_log_stderr"].to_numpy(),
+            _group_label(others, key),
         )
         if fit is not None:
             fits.append(fit)
     return fits
 
 
-def log_transmission_figure(store: Store):
+def log_transmission_figure(store: Store, fits: list[LengthSeries] | None = None):
     """``<ln T>`` with error bars against the sample length, and the fitted ``a - 2L/xi`` lines."""
     figure, (ax,) = _figure()
-    fits = localization_fits(store)
+    fits = localization_fits(store) if fits is None else fits
     for number, fit in enumerate(fits):
         label = (
             f"{fit.label}: xi = {fit.fit.localization_length:.3g} ± {fit.fit.stderr:.2g}"
@@ -181,6 +213,41 @@ def log_transmission_figure(store: Store):
     return figure
 
 
+class _Profiles:
+    """A store's profiles point by point, read through :meth:`Store.dataset <mottle.Store.dataset>`
+    (lazily: only the points drawn are read)."""
+
+    def __init__(self, store: Store):
+        self.store = store
+        self.dataset = store.dataset()
+        self.indices = store.indices
+        sizes = [len(values) for values in store.sweep.values()] if store.grid else [store.total]
+        self.dims = [name for name in self.dataset.computed.dims]
+        self.sizes = sizes
+
+    def __len__(self) -> int:
+        return len(self.indices)
+
+    def _where(self, number: int) -> dict:
+        index = int(self.indices[number])
+        if not self.dims:
+            return {}
+        return dict(zip(self.dims, np.unravel_index(index, self.sizes), strict=True))
+
+    def get(self, number: int, name: str) -> np.ndarray:
+        """Profile ``name`` (``density``, ``momentum``...) of the ``number``-th finished point."""
+        if name in self.dataset:
+            return self.dataset[name].isel(self._where(number)).values
+        return np.asarray(getattr(self.store.points[number].result, name))
+
+    def axis(self, number: int, name: str) -> np.ndarray:
+        """``time``, ``x`` or ``k`` of a point."""
+        if name in self.dataset.coords:
+            return self.dataset[name].values
+        result = self.store.points[number].result
+        return np.asarray(result.times if name == "time" else getattr(result, name))
+
+
 def _panels(times) -> list[int]:
     count = len(times)
     if count <= MAX_PANELS:
@@ -189,17 +256,19 @@ def _panels(times) -> list[int]:
 
 
 def _profile_figure(store: Store, quantity: str, log: bool):
-    first = store.points[0].result
-    panels = _panels(first.times)
+    profiles = _Profiles(store)
+    axis = "x" if quantity == "density" else "k"
+    times = profiles.axis(0, "time")
+    panels = _panels(times)
     figure, axes = _figure(len(panels), 1, height=3.0)
     names = short_names(store.sweep)
-    colours = _colours(len(store.points))
+    points = store.points
+    colours = _colours(len(points))
+    curves = [(profiles.axis(n, axis), profiles.get(n, quantity)) for n in range(len(points))]
     for ax, snapshot in zip(axes, panels, strict=True):
         peak = 0.0
-        for number, point in enumerate(store.points):
-            result = point.result
-            x = result.x if quantity == "density" else result.k
-            y = getattr(result, quantity)[snapshot]
+        for number, (point, (x, values)) in enumerate(zip(points, curves, strict=True)):
+            y = values[snapshot]
             label = point.label(names) if number < MAX_LEGEND else None
             ax.plot(x, y, color=colours[number], linewidth=1, label=label)
             peak = max(peak, float(np.max(y)))
@@ -207,19 +276,17 @@ def _profile_figure(store: Store, quantity: str, log: bool):
             ax.set_yscale("log")
             if peak > 0:
                 ax.set_ylim(peak * 1e-14, peak * 3)
-        ax.set_title(f"t = {first.times[snapshot]:.4g}", fontsize="medium")
+        ax.set_title(f"t = {times[snapshot]:.4g}", fontsize="medium")
         ax.set_xlabel("x" if quantity == "density" else "wavenumber k")
         ax.set_ylabel("mean |psi(x)|^2" if quantity == "density" else "mean |phi(k)|^2")
         if quantity == "momentum" and peak > 0:
-            populated = np.flatnonzero(
-                np.max([p.result.momentum[snapshot] for p in store.points], axis=0) > 1e-4 * peak
-            )
-            k = first.k
+            populated = np.flatnonzero(np.max([c[1][snapshot] for c in curves], axis=0) > 1e-4 * peak)
+            k = curves[0][0]
             ax.set_xlim(
                 k[populated[0]] - 0.1 * abs(k[populated[0]]) - 1e-3,
                 k[populated[-1]] + 0.1 * abs(k[populated[-1]]) + 1e-3,
             )
-    if 1 < len(store.points):
+    if 1 < len(points):
         axes[0].legend(fontsize="x-small")
     return figure
 
@@ -258,15 +325,16 @@ def density_figure(store: Store):
     from matplotlib.patches import Patch
 
     points = store.points
+    profiles = _Profiles(store)
     shown = _panels_of(len(points), MAX_DENSITY_PANELS)
-    first = points[0].result
-    snapshots = _panels(first.times)
+    times = profiles.axis(0, "time")
+    snapshots = _panels(times)
     figure, axes = _figure(len(shown), 1, height=2.6)
     names = short_names(store.sweep)
     colours = _colours(len(snapshots))
     for ax, number in zip(axes, shown, strict=True):
         point = points[number]
-        result = point.result
+        x, density = profiles.axis(number, "x"), profiles.get(number, "density")
         disorder, layers = _regions(store, point)
         for start, stop in disorder:
             ax.axvspan(start, stop, color="0.85", zorder=0)
@@ -274,13 +342,13 @@ def density_figure(store: Store):
             ax.axvspan(start, stop, facecolor="none", edgecolor="tab:red", hatch="//", alpha=0.5, zorder=0)
         peak = 0.0
         for colour, snapshot in zip(colours, snapshots, strict=True):
-            y = result.density[snapshot]
-            ax.plot(result.x, y, color=colour, linewidth=1, label=f"t = {result.times[snapshot]:.4g}")
+            y = density[snapshot]
+            ax.plot(x, y, color=colour, linewidth=1, label=f"t = {times[snapshot]:.4g}")
             peak = max(peak, float(np.max(y)))
         ax.set_yscale("log")
         if peak > 0:
             ax.set_ylim(peak * 1e-14, peak * 3)
-        ax.set_xlim(result.x[0], result.x[-1])
+        ax.set_xlim(x[0], x[-1])
         title = point.label(names) if store.sweep else store.title
         ax.set_title(f"point {number + 1}: {title}", fontsize="medium")
         ax.set_ylabel("mean |psi(x)|^2")
@@ -308,39 +376,42 @@ def momentum_figure(store: Store):
     return _profile_figure(store, "momentum", log=False)
 
 
-def summary(store: Store, fits: list[LengthSeries] | None = None) -> str:
-    """A plain-text table of every finished point, and the localization-length fits."""
+def summary(store: Store, fits: list[LengthSeries] | None = None, table=None) -> str:
+    """A plain-text table of every finished point, and the localization-length fits (built on
+    :meth:`Store.table <mottle.Store.table>`)."""
+    table = store.table() if table is None else table
     names = short_names(store.sweep)
-    headers = [names[p] for p in store.sweep] + ["runs", "<T>", "±", "exp<ln T>", "<ln T>", "±", "<R>", "s"]
+    swept = [names[p] for p in store.sweep]
+    headers = [*swept, "runs", "<T>", "±", "exp<ln T>", "<ln T>", "±", "<R>", "s"]
     rows = []
-    for point in store.points:
-        result = point.result
-        t, r = result.transmission, result.reflection
+    for get in table.to_dict("records"):
+        log_mean = get["transmission_log_mean"]
         rows.append(
-            [format_value(point.parameters[p]) for p in store.sweep]
+            [format_value(_plain(get[name])) for name in swept]
             + [
-                str(point.count),
-                f"{t.mean:.5g}",
-                f"{t.stderr:.2g}",
-                f"{t.typical:.4g}",
-                f"{t.log_mean:.4g}",
-                f"{t.log_stderr:.2g}",
-                f"{r.mean:.5g}",
-                f"{point.wall_time:.3g}",
+                str(get["count"]),
+                f"{get['transmission_mean']:.5g}",
+                f"{get['transmission_stderr']:.2g}",
+                f"{math.exp(log_mean) if math.isfinite(log_mean) else math.nan:.4g}",
+                f"{log_mean:.4g}",
+                f"{get['transmission_log_stderr']:.2g}",
+                f"{get['reflection_mean']:.5g}",
+                f"{get['wall_time']:.3g}",
             ]
         )
     widths = [max(len(h), *(len(row[i]) for row in rows)) if rows else len(h) for i, h in enumerate(headers)]
     lines = [
-        f"{store.title}: {len(store.points)} of {store.total} points "
-        f"(mottle {store.mottle_version}, {store.path})",
+        f"{store.title}: {len(table)} of {store.total} points (mottle {store.mottle_version}, {store.path})",
         "  ".join(h.rjust(w) for h, w in zip(headers, widths, strict=True)),
     ]
     lines += ["  ".join(c.rjust(w) for c, w in zip(row, widths, strict=True)) for row in rows]
-    if store.missing:
-        lines.append(
-            f"missing points: {', '.join(str(i + 1) for i in store.missing)} (resume with mottle run)"
+    missing = store.missing
+    if missing:
+        shown = ", ".join(str(i + 1) for i in missing[:50]) + (
+            f" and {len(missing) - 50} more" if len(missing) > 50 else ""
         )
-    fits = localization_fits(store) if fits is None else fits
+        lines.append(f"missing points: {shown} (resume with mottle run)")
+    fits = localization_fits(store, table) if fits is None else fits
     if fits:
         lines.append("localization length (amplitude), <ln T> = a - 2L/xi:")
         for fit in fits:
@@ -349,6 +420,11 @@ def summary(store: Store, fits: list[LengthSeries] | None = None) -> str:
                 f"from {fit.lengths.size} lengths (a = {fit.fit.intercept:.3g})"
             )
     return "\n".join(lines) + "\n"
+
+
+def _plain(value):
+    """A table cell as a plain Python value (numpy scalars to int or float)."""
+    return value.item() if isinstance(value, np.generic) else value
 
 
 @dataclass
@@ -361,6 +437,24 @@ class Report:
     fits: list[LengthSeries] = field(default_factory=list)
 
 
+def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) -> list[tuple[str, object]]:
+    """The report's figures as ``(file name, Figure)``: each comes from its own ``*_figure`` function,
+    drawn when the store holds what it shows."""
+    table = store.table() if table is None else table
+    names = short_names(store.sweep)
+    out: list[tuple[str, object]] = [
+        (f"transmission_vs_{_file_name(names[p])}.png", transmission_figure(store, p, table))
+        for p in swept_numbers(store)
+    ]
+    fits = localization_fits(store, table) if fits is None else fits
+    if fits:
+        out.append(("log_transmission_vs_length.png", log_transmission_figure(store, fits)))
+    if len(_Profiles(store).axis(0, "time")):
+        out.append(("density.png", density_figure(store)))
+        out.append(("momentum.png", momentum_figure(store)))
+    return out
+
+
 def report(store: Store | str, out: str | Path) -> Report:
     """Write the figures of ``store`` as PNG to ``out`` and a summary table ``summary.txt``."""
     if not isinstance(store, Store):
@@ -368,25 +462,16 @@ def report(store: Store | str, out: str | Path) -> Report:
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     done = Report(out)
-    if not store.points:
+    table = store.table()
+    if not len(table):
         done.summary_text = f"{store.path}: no finished points yet\n"
         return done
-    names = short_names(store.sweep)
-    figures = [
-        (f"transmission_vs_{_file_name(names[p])}.png", transmission_figure(store, p))
-        for p in swept_numbers(store)
-    ]
-    done.fits = localization_fits(store)
-    if done.fits:
-        figures.append(("log_transmission_vs_length.png", log_transmission_figure(store)))
-    if len(store.points[0].result.times):
-        figures.append(("density.png", density_figure(store)))
-        figures.append(("momentum.png", momentum_figure(store)))
-    for name, figure in figures:
+    done.fits = localization_fits(store, table)
+    for name, figure in figures(store, table, done.fits):
         path = out / name
         figure.savefig(path, dpi=110)
         done.files.append(path)
-    done.summary_text = summary(store, done.fits)
+    done.summary_text = summary(store, done.fits, table)
     path = out / "summary.txt"
     path.write_text(done.summary_text, encoding="utf-8")
     done.files.append(path)
@@ -401,6 +486,7 @@ __all__ = [
     "LengthSeries",
     "Report",
     "density_figure",
+    "figures",
     "fit_series",
     "localization_fits",
     "log_transmission_figure",
