@@ -398,6 +398,12 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     store = mo.open_store(tmp_path / "demo" / "demo.mottle")
     assert store.complete and len(store.points) == 12
     assert mo.load_study(tmp_path / "demo" / "demo.toml").differences(store.canonical) == []
+    # Labelled access: one dimension per swept key, the stored numbers to the bit.
+    ds = store.dataset()
+    assert ds.transmission_mean.dims == ("strength", "stop")
+    assert list(ds.strength.values) == [0.1, 0.2, 0.3] and list(ds.stop.values) == [20.0, 40.0, 60.0, 80.0]
+    (point,) = [p for p in store.points if p.parameters["system.disorder.0.strength"] == 0.2 and p.parameters["system.disorder.0.stop"] == 40.0]
+    assert ds.transmission_mean.sel(strength=0.2, stop=40.0).item() == point.result.transmission.mean
     figures = tmp_path / "demo" / "figures"
     assert (figures / "log_transmission_vs_length.png").stat().st_size > 10000
     # Stronger speckle localizes more: the fitted xi falls with the strength.

@@ -483,8 +483,9 @@ class Store:
         as coordinates; a distribution or packet spec as its label); zipped groups and point lists
         give one ``point`` dimension with the swept values as coordinates along it. Variables: the
         scalar statistics (:func:`point_statistics`), ``count``, ``wall_time``, ``compute_time``
-        (NaN where a point is not computed yet), ``seed`` (0 there) and ``computed``; where every
-        point shares one grid and one set of snapshots, the profiles ``density``,
+        (NaN where a point is not computed yet; ``ds["count"]``, as ``Dataset.count`` is a method),
+        ``seed`` (0 there) and ``computed``; where every
+        point shares one grid and one non-empty set of snapshots, the profiles ``density``,
         ``density_stderr``, ``log_density``, ``log_density_stderr`` (``time``, ``x``), ``momentum``
         (``time``, ``k``), ``position``, ``second_moment`` and ``participation`` (``time``), read from
         the file only when their values are asked for.
@@ -524,8 +525,8 @@ class Store:
             variables[name] = (dims, scatter(column, np.float64, np.nan))
         layouts = set(c["layout"])
         attrs = {"title": self.title, "store": str(self.path), "points_total": total}
-        if len(layouts) == 1 and order:
-            first = self.points[0].arrays()
+        first = self.points[0].arrays() if len(layouts) == 1 and order else {}
+        if first and first["times"].size:
             times, x, k = first["times"], first["x"], first["k"]
             coords.update({"time": times, "x": x, "k": k})
             positions = np.full(total, -1, dtype=np.int64)
