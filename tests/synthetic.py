@@ -92,25 +92,35 @@ def write_synthetic_store(path, first: int = 316, second: int = 317, batch: int 
     with stores.StoreWriter(path, study) as writer:
         for start in range(0, indices.size, batch):
             chunk = indices[start : start + batch]
-            rows, columns = np.unravel_index(chunk, (first, second))
+            rows, columns_of = np.unravel_index(chunk, (first, second))
             n = chunk.size
-            stats = {name: rng.uniform(0.01, 1.0, n).tolist() for name in names}
-            meta = {
-                "index": chunk.tolist(),
-                "seed": rng.integers(0, 2**62, n).tolist(),
-                "count": [4] * n,
-                "wall_time": rng.uniform(0.01, 0.02, n).tolist(),
-                "compute_time": rng.uniform(0.01, 0.02, n).tolist(),
-                "host": ["synthetic"] * n,
-                "finished": ["2026-01-01T00:00:00+00:00"] * n,
-                "mottle_version": "synthetic",
-                "parameters": [
-                    {"system.disorder.0.rms": sweep[0][r], "packet.wavenumber": sweep[1][c]}
-                    for r, c in zip(rows.tolist(), columns.tolist(), strict=True)
-                ],
-                "layout": [layout] * n,
-                "blobs": [[i * len(blob), len(blob), crc] for i in range(n)],
-                "stats": stats,
+            columns = {
+                "index": chunk,
+                "seed": rng.integers(0, 2**62, n),
+                "count": np.full(n, 4),
+                "wall_time": rng.uniform(0.01, 0.02, n),
+                "compute_time": rng.uniform(0.01, 0.02, n),
+                "offset": np.arange(n) * len(blob),
+                "length": np.full(n, len(blob)),
+                "crc": np.full(n, crc),
+                "host_code": np.zeros(n, dtype=np.int64),
+                "layout_code": np.zeros(n, dtype=np.int64),
             }
-            writer._append(stores._record(stores._POINTS, meta, blob * n), n)
+            columns.update({f"stat:{name}": rng.uniform(0.01, 1.0, n) for name in names})
+            block, directory = stores._columns_block(columns, stores._NUMERIC)
+            meta = {
+                "n": n,
+                "hosts": ["synthetic"],
+                "layouts": [layout],
+                "finished": "2026-01-01T00:00:00+00:00",
+                "mottle_version": "synthetic",
+                "parameters": {
+                    "system.disorder.0.rms": [sweep[0][r] for r in rows.tolist()],
+                    "packet.wavenumber": [sweep[1][c] for c in columns_of.tolist()],
+                },
+                "columns": directory,
+                "columns_bytes": len(block),
+                "columns_crc": stores._crc(block),
+            }
+            writer._append(stores._record(stores._POINTS, meta, block + blob * n), n)
     return path

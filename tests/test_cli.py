@@ -102,7 +102,9 @@ def workspace(tmp_path_factory):
 @pytest.fixture(scope="module")
 def in_process(workspace):
     """The reference: the whole study in one uninterrupted in-process run."""
-    result = mottle("run", workspace / "study.toml", "--store", workspace / "in-process.mottle", "--threads", 2)
+    result = mottle(
+        "run", workspace / "study.toml", "--store", workspace / "in-process.mottle", "--threads", 2
+    )
     assert result.returncode == 0, result.stderr
     return workspace / "in-process.mottle", result
 
@@ -393,7 +395,10 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     elapsed = time.monotonic() - began
     assert result.returncode == 0, result.stderr
     assert elapsed < 120
-    for line in (f"study:   {tmp_path / 'demo' / 'demo.toml'}", f"store:   {tmp_path / 'demo' / 'demo.mottle'}"):
+    for line in (
+        f"study:   {tmp_path / 'demo' / 'demo.toml'}",
+        f"store:   {tmp_path / 'demo' / 'demo.mottle'}",
+    ):
         assert line in result.stdout
     store = mo.open_store(tmp_path / "demo" / "demo.mottle")
     assert store.complete and len(store.points) == 12
@@ -402,7 +407,12 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     ds = store.dataset()
     assert ds.transmission_mean.dims == ("strength", "stop")
     assert list(ds.strength.values) == [0.1, 0.2, 0.3] and list(ds.stop.values) == [20.0, 40.0, 60.0, 80.0]
-    (point,) = [p for p in store.points if p.parameters["system.disorder.0.strength"] == 0.2 and p.parameters["system.disorder.0.stop"] == 40.0]
+    (point,) = [
+        p
+        for p in store.points
+        if p.parameters["system.disorder.0.strength"] == 0.2
+        and p.parameters["system.disorder.0.stop"] == 40.0
+    ]
     assert ds.transmission_mean.sel(strength=0.2, stop=40.0).item() == point.result.transmission.mean
     figures = tmp_path / "demo" / "figures"
     assert (figures / "log_transmission_vs_length.png").stat().st_size > 10000

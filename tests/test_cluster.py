@@ -131,7 +131,10 @@ def test_run_study_with_target_stderr_stores_the_same_numbers_both_ways(client, 
     stopping = small_study([0.3], realizations=320, target=target)
     mo.run_study(stopping, tmp_path / "here.mottle", progress=False, threads=1)
     mo.run_study(stopping, tmp_path / "there.mottle", scheduler=client, progress=False, threads=1)
-    here, there = mo.open_store(tmp_path / "here.mottle").points, mo.open_store(tmp_path / "there.mottle").points
+    here, there = (
+        mo.open_store(tmp_path / "here.mottle").points,
+        mo.open_store(tmp_path / "there.mottle").points,
+    )
     assert [p.count for p in here] == [p.count for p in there] == [chunks * mo.CHUNK]
     same(here[0].result, there[0].result)
 

@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 import mottle as mo
-from mottle.studies.store import Finished, StoreError, StoreWriter, convert
+from mottle.studies.store import Finished, StoreError, StoreWriter, convert_store
 from mottle.studies.study import parse_study
 
 STUDY = """\
@@ -215,7 +215,7 @@ def test_a_damaged_point_is_refused_when_read_and_the_others_still_read(tmp_path
     path.write_bytes(bytes(data))
     store = mo.open_store(path)
     with pytest.raises(StoreError, match="damaged: the arrays of point 2 fail their checksum"):
-        store.points[1].result
+        store.points[1].arrays()
     assert_bitwise(store.points[2].result, results[2])
 
 
@@ -281,7 +281,9 @@ def slow(fd, data, offset):
 os.pwrite = slow
 """
 
-KILLED = SLOW_DISK + """
+KILLED = (
+    SLOW_DISK
+    + """
 import sys
 import mottle as mo
 from mottle.studies.study import parse_study
@@ -295,6 +297,7 @@ with StoreWriter(sys.argv[1], study) as writer:
         writer.commit([Finished(point, result, 0.0, 0.0, "h")])
         print(point.index, flush=True)
 """
+)
 
 # Many points with large profiles, so that commits take long enough for kills to land inside them.
 KILL_STUDY = (
@@ -389,19 +392,25 @@ def test_without_flock_an_exclusive_lock_file_keeps_one_writer(tmp_path, study, 
     with StoreWriter(path, study) as writer:
         writer.commit([Finished(study.points[1], results[1], 0.0, 0.0, "h")])
         assert lock.read_text().split() == [str(os.getpid()), socket.gethostname()]
-        with pytest.raises(StoreError, match=rf"being written by another mottle run \(process {os.getpid()} "):
+        with pytest.raises(
+            StoreError, match=rf"being written by another mottle run \(process {os.getpid()} "
+        ):
             with StoreWriter(path, study):
                 pass
     assert not lock.exists()
     assert [p.index for p in mo.open_store(path).points] == [1]
     # A lock file left by a process that is dead on this host is taken over.
-    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True)
+    dead = subprocess.run(
+        [sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True
+    )
     lock.write_text(f"{dead.stdout.strip()} {socket.gethostname()}\n")
     with StoreWriter(path, study) as writer:
         assert writer.done == {1}
     # One from another host cannot be checked: refused, saying how to clear it.
     lock.write_text("4242 node-17\n")
-    with pytest.raises(StoreError, match=r"process 4242 node-17.*if that run is dead, remove .*r.mottle.lock"):
+    with pytest.raises(
+        StoreError, match=r"process 4242 node-17.*if that run is dead, remove .*r.mottle.lock"
+    ):
         with StoreWriter(path, study):
             pass
     assert [p.index for p in mo.open_store(path).points] == [1]
@@ -473,12 +482,14 @@ def test_a_format1_store_converts_exactly(tmp_path, study, results):
     with StoreWriter(tmp_path / "new.mottle", study) as writer:
         assert writer.done == {0, 2}
     with pytest.raises(StoreError, match="exists already"):
-        convert(old, tmp_path / "new.mottle")
+        convert_store(old, tmp_path / "new.mottle")
     with pytest.raises(StoreError, match="not an HDF5 file"):
-        convert(tmp_path / "new.mottle", tmp_path / "other.mottle")
+        convert_store(tmp_path / "new.mottle", tmp_path / "other.mottle")
 
 
-KILLED_STUDY = SLOW_DISK + """
+KILLED_STUDY = (
+    SLOW_DISK
+    + """
 import sys
 from mottle.studies import store
 from mottle.studies.runner import run_study
@@ -495,6 +506,7 @@ def noisy(self, record, count):
 store.StoreWriter._append = noisy
 run_study(parse_study(open(sys.argv[2]).read(), "tiny.toml"), sys.argv[1], progress=False, threads=1)
 """
+)
 
 TINY = """[system]
 points = 64

@@ -162,8 +162,10 @@ def test_a_point_list_is_labelled_point_by_point_and_partial_stores_say_nan(tmp_
 RANDOM = ZIPPED.split("[sweep]")[0].replace(
     "center = -20.0\nwavenumber = 1.2",
     'kind = "random"\ncenter = { normal = [-20.0, 1.0] }\nwavenumber = 1.2',
-) + ('[sweep]\n"packet.wavenumber" = [{ uniform = [1.0, 1.2] }, { uniform = [1.2, 1.4] }, 1.5]\n'
-     '"system.disorder.0.stop" = [10.0, 20.0]\n')
+) + (
+    '[sweep]\n"packet.wavenumber" = [{ uniform = [1.0, 1.2] }, { uniform = [1.2, 1.4] }, 1.5]\n'
+    '"system.disorder.0.stop" = [10.0, 20.0]\n'
+)
 
 
 def test_a_swept_distribution_is_labelled_and_the_report_does_not_crash(tmp_path):
@@ -181,8 +183,11 @@ def test_a_swept_distribution_is_labelled_and_the_report_does_not_crash(tmp_path
     names = {path.name for path in written.files}
     assert "transmission_vs_stop.png" in names and "summary.txt" in names
     fits = written.fits
-    assert [fit.label for fit in fits] == ["wavenumber=uniform(1, 1.2)", "wavenumber=uniform(1.2, 1.4)",
-                                           "wavenumber=1.5"]
+    assert [fit.label for fit in fits] == [
+        "wavenumber=uniform(1, 1.2)",
+        "wavenumber=uniform(1.2, 1.4)",
+        "wavenumber=1.5",
+    ]
     assert "wavenumber=uniform(1.2, 1.4)" in written.summary_text
     for fit in fits:
         assert all(math.isfinite(v) for v in fit.log_transmission)

@@ -52,7 +52,7 @@ from .stationary.localization import (
     transmission_spectrum,
 )
 from .studies.runner import StudyInterrupted, run_study
-from .studies.store import Store, StoreError, open_store
+from .studies.store import Store, StoreError, convert_store, open_store
 from .studies.study import Study, StudyError, StudyPoint, load_study
 
 __version__ = "0.1.0"
@@ -93,6 +93,7 @@ __all__ = [
     "UnderResolvedWarning",
     "Uniform",
     "Wavefunction",
+    "convert_store",
     "ensemble",
     "ensemble_partial",
     "ground_state",

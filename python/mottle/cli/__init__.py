@@ -259,9 +259,9 @@ def _command_report(args) -> int:
 
 
 def _command_convert(args) -> int:
-    from ..studies.store import convert
+    from ..studies.store import convert_store
 
-    store = convert(args.old, args.new)
+    store = convert_store(args.old, args.new)
     print(f"converted {args.old}: {len(store.points)} of {store.total} points in {args.new}")
     return 0
 

@@ -21,12 +21,13 @@ import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
 from ..analysis.fits import LocalizationFit, line_fit
 from ..studies.store import Store, open_store
-from ..studies.study import format_value, point_label, short_names
+from ..studies.study import format_value, short_names
 
 _LENGTH_PATH = re.compile(r"^system\.disorder\.(\d+)\.(start|stop)$")
 MAX_LEGEND = 10
@@ -50,7 +51,7 @@ def _columns(store: Store) -> dict[str, str]:
     return short_names(store.sweep)
 
 
-def _groups(table, columns: list[str]) -> dict[tuple, object]:
+def _groups(table, columns: list[str]) -> dict[tuple, Any]:
     """Rows of ``table`` grouped by their values in ``columns``, in order of first appearance.
 
     Swept values are numbers or labels in the table (a distribution or packet spec as its label
@@ -437,12 +438,12 @@ class Report:
     fits: list[LengthSeries] = field(default_factory=list)
 
 
-def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) -> list[tuple[str, object]]:
+def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) -> list[tuple[str, Any]]:
     """The report's figures as ``(file name, Figure)``: each comes from its own ``*_figure`` function,
     drawn when the store holds what it shows."""
     table = store.table() if table is None else table
     names = short_names(store.sweep)
-    out: list[tuple[str, object]] = [
+    out: list[tuple[str, Any]] = [
         (f"transmission_vs_{_file_name(names[p])}.png", transmission_figure(store, p, table))
         for p in swept_numbers(store)
     ]

@@ -186,6 +186,17 @@ def point_statistics(result: EnsembleResult) -> dict[str, float]:
     return out
 
 
+def _columns_block(columns: Mapping[str, list], dtypes: Mapping[str, Any]) -> tuple[bytes, dict]:
+    """Columns of numbers as one block of raw arrays (8-byte aligned) and its directory."""
+    chunks, directory, offset = [], {}, 0
+    for name, values in columns.items():
+        raw = np.asarray(values, dtype=dtypes.get(name, np.float64)).tobytes()
+        directory[name] = [np.dtype(dtypes.get(name, np.float64)).str, offset]
+        chunks += [raw, b"\0" * _pad(len(raw))]
+        offset += len(raw) + _pad(len(raw))
+    return b"".join(chunks), directory
+
+
 def _layout(arrays: Mapping[str, np.ndarray]) -> str:
     """A short fingerprint of a point's axes (times, x, k): points with one layout share profiles' dims."""
     digest = hashlib.sha256()
@@ -270,15 +281,29 @@ def _scan(path: Path) -> _Scan:
             if kind == _STUDY and study is None:
                 study, study_data = meta, data_at
             elif kind == _POINTS and study is not None:
+                block = handle.read(int(meta["columns_bytes"]))
+                if _crc(block) != meta["columns_crc"]:
+                    raise StoreError(
+                        f"{path} is a damaged mottle results store (the columns of the record at byte "
+                        f"{position} fail their checksum); it cannot be read"
+                    )
+                meta["columns"] = {
+                    name: np.frombuffer(block, dtype=np.dtype(dtype), count=int(meta["n"]), offset=offset)
+                    for name, (dtype, offset) in meta["columns"].items()
+                }
                 records.append((meta, data_at))
             else:
-                raise StoreError(f"{path} is a damaged mottle results store (unexpected record at {position})")
+                raise StoreError(
+                    f"{path} is a damaged mottle results store (unexpected record at {position})"
+                )
             position = stop
             handle.seek(position)
         if study is None:
             raise StoreError(f"{path} is a truncated mottle results store (its study record is incomplete)")
         if study.get("format") != FORMAT:
-            raise StoreError(f"{path} is not a mottle results store (no format={FORMAT!r} in its study record)")
+            raise StoreError(
+                f"{path} is not a mottle results store (no format={FORMAT!r} in its study record)"
+            )
     return _Scan(study, study_data, records, position, size)
 
 
@@ -381,30 +406,33 @@ class Store:
     def points(self) -> list[StoredPoint]:
         """The finished points, by index."""
         if self._points is None:
-            c = self._columns
-            self._points = [
-                StoredPoint(
-                    self.path,
-                    c["index"][i],
-                    c["parameters"][i],
-                    c["seed"][i],
-                    c["count"][i],
-                    c["wall_time"][i],
-                    c["compute_time"][i],
-                    c["host"][i],
-                    c["mottle_version"][i],
-                    c["finished"][i],
-                    {name: values[i] for name, values in c["stats"].items()},
-                    tuple(c["where"][i]),
-                )
-                for i in c["order"]
-            ]
+            self._points = [self._point(number) for number in range(self._columns["n"])]
         return self._points
+
+    def _point(self, number: int) -> StoredPoint:
+        """The ``number``-th finished point (by index), made on its own."""
+        if self._points is not None:
+            return self._points[number]
+        c = self._columns
+        return StoredPoint(
+            self.path,
+            int(c["index"][number]),
+            {path: values[number] for path, values in c["parameters"].items()},
+            int(c["seed"][number]),
+            int(c["count"][number]),
+            float(c["wall_time"][number]),
+            float(c["compute_time"][number]),
+            str(c["host"][number]),
+            str(c["mottle_version"][number]),
+            str(c["finished"][number]),
+            {name: float(values[number]) for name, values in c["stats"].items()},
+            (int(c["offset"][number]), int(c["length"][number]), int(c["crc"][number])),
+        )
 
     @property
     def indices(self) -> np.ndarray:
         """The indices of the finished points, increasing."""
-        return np.asarray(self._columns["index"], dtype=np.int64)[self._columns["order"]]
+        return self._columns["index"].copy()
 
     @property
     def sweep(self) -> dict:
@@ -425,7 +453,7 @@ class Store:
 
     @property
     def complete(self) -> bool:
-        return len(self._columns["order"]) == self.total
+        return self._columns["n"] == self.total
 
     def swept_values(self, index) -> dict:
         """The swept values of point(s) ``index`` (computed or not), from the study's sweep."""
@@ -456,18 +484,14 @@ class Store:
         import pandas as pd
 
         c = self._columns
-        order = c["order"]
         names = short_names(self.sweep)
-        data: dict[str, Any] = {"index": np.asarray(c["index"], dtype=np.int64)[order]}
+        data: dict[str, Any] = {"index": c["index"]}
         for path in self.sweep:
-            data[names[path]] = _column([c["parameters"][i].get(path) for i in order])
-        data["seed"] = np.asarray(c["seed"], dtype=np.uint64)[order]
-        data["count"] = np.asarray(c["count"], dtype=np.int64)[order]
-        for name in ("wall_time", "compute_time"):
-            data[name] = np.asarray(c[name], dtype=np.float64)[order]
-        data["host"] = [c["host"][i] for i in order]
+            data[names[path]] = _column(c["parameters"].get(path, [None] * c["n"]))
+        for name in ("seed", "count", "wall_time", "compute_time", "host"):
+            data[name] = c[name]
         for name, values in c["stats"].items():
-            data[name] = np.asarray(values, dtype=np.float64)[order]
+            data[name] = values
         return pd.DataFrame(data)
 
     def to_csv(self, path: str | os.PathLike) -> Path:
@@ -495,8 +519,7 @@ class Store:
         c = self._columns
         sweep = self.sweep
         names = short_names(sweep)
-        order = c["order"]
-        stored = np.asarray(c["index"], dtype=np.int64)
+        stored = c["index"]
         if self.grid:
             dims = [names[p] for p in sweep]
             shape = tuple(len(v) for v in sweep.values())
@@ -510,7 +533,7 @@ class Store:
 
         def scatter(column, dtype, fill):
             out = np.full(total, fill, dtype=dtype)
-            out[stored] = np.asarray(column, dtype=dtype)
+            out[stored] = column
             return out.reshape(shape)
 
         variables: dict[str, Any] = {}
@@ -525,12 +548,12 @@ class Store:
             variables[name] = (dims, scatter(column, np.float64, np.nan))
         layouts = set(c["layout"])
         attrs = {"title": self.title, "store": str(self.path), "points_total": total}
-        first = self.points[0].arrays() if len(layouts) == 1 and order else {}
+        first = self._point(0).arrays() if len(layouts) == 1 and c["n"] else {}
         if first and first["times"].size:
             times, x, k = first["times"], first["x"], first["k"]
             coords.update({"time": times, "x": x, "k": k})
             positions = np.full(total, -1, dtype=np.int64)
-            positions[self.indices] = np.arange(len(order))
+            positions[stored] = np.arange(c["n"])
             for name, extra, getter in _PROFILES:
                 axes = {"time": times.size, "x": x.size, "k": k.size}
                 lazy = _LazyProfiles(self, positions.reshape(shape), tuple(axes[a] for a in extra), getter)
@@ -540,7 +563,7 @@ class Store:
         return xr.Dataset(variables, coords=coords, attrs=attrs)
 
     def __repr__(self) -> str:
-        return f"Store({str(self.path)!r}: {len(self._columns['order'])} of {self.total} points)"
+        return f"Store({str(self.path)!r}: {self._columns['n']} of {self.total} points)"
 
 
 def _column(values: list) -> np.ndarray:
@@ -553,49 +576,68 @@ def _column(values: list) -> np.ndarray:
 
 
 def _merge(records: list[tuple[dict, int]]) -> dict:
-    """The columns of every points record, one entry per point (the first copy of an index wins)."""
-    columns: dict[str, Any] = {
-        name: []
-        for name in (
-            "index",
-            "seed",
-            "count",
-            "wall_time",
-            "compute_time",
-            "host",
-            "finished",
-            "parameters",
-            "layout",
-            "where",
-            "mottle_version",
-        )
-    }
+    """The columns of every points record, one entry per point, sorted by index (the first copy of
+    an index wins)."""
+    parts: dict[str, list] = {name: [] for name in _NUMERIC}
     stats: dict[str, list] = {}
-    seen: set[int] = set()
+    texts: dict[str, list] = {"host": [], "layout": [], "finished": [], "mottle_version": []}
+    parameters: dict[str, list] = {}
+    total = 0
     for meta, data_at in records:
-        count = len(meta["index"])
-        keep = [i for i, index in enumerate(meta["index"]) if index not in seen]
-        seen.update(meta["index"])
-        if not keep:
-            continue
-        before = len(columns["index"])
-        for name in ("index", "seed", "count", "wall_time", "compute_time", "host", "finished"):
-            values = meta[name]
-            columns[name].extend(values if len(keep) == count else [values[i] for i in keep])
-        columns["parameters"].extend(meta["parameters"][i] for i in keep)
-        columns["layout"].extend(meta["layout"][i] for i in keep)
-        columns["where"].extend(
-            (data_at + meta["blobs"][i][0], meta["blobs"][i][1], meta["blobs"][i][2]) for i in keep
-        )
-        columns["mottle_version"].extend([meta["mottle_version"]] * len(keep))
-        for name, values in meta["stats"].items():
-            column = stats.setdefault(name, [math.nan] * before)
-            column.extend(values[i] for i in keep)
+        columns = meta["columns"]
+        n = int(meta["n"])
+        for name in _NUMERIC:
+            parts[name].append(columns[name])
+        parts["offset"][-1] = parts["offset"][-1] + (data_at + int(meta["columns_bytes"]))
+        for name in columns:
+            if name.startswith("stat:"):
+                stats.setdefault(name[5:], [np.full(total, np.nan)] if total else []).append(columns[name])
         for column in stats.values():
-            column.extend([math.nan] * (len(columns["index"]) - len(column)))
-    columns["stats"] = stats
-    columns["order"] = np.argsort(np.asarray(columns["index"], dtype=np.int64), kind="stable").tolist()
-    return columns
+            if sum(part.size for part in column) < total + n:
+                column.append(np.full(n, np.nan))
+        texts["host"].append(np.asarray(meta["hosts"], dtype=object)[columns["host_code"]])
+        texts["layout"].append(np.asarray(meta["layouts"], dtype=object)[columns["layout_code"]])
+        texts["finished"].append(np.full(n, meta["finished"], dtype=object))
+        texts["mottle_version"].append(np.full(n, meta["mottle_version"], dtype=object))
+        for path, values in meta["parameters"].items():
+            column = parameters.setdefault(path, [None] * total)
+            column.extend(values)
+        total += n
+        for column in parameters.values():
+            column.extend([None] * (total - len(column)))
+    out: dict[str, Any] = {}
+    if not total:
+        out.update({name: np.zeros(0, dtype=dtype) for name, dtype in _NUMERIC.items()})
+        out.update({name: np.zeros(0, dtype=object) for name in texts})
+        out.update(stats={}, parameters={}, n=0)
+        return out
+    index = np.concatenate(parts["index"])
+    order = np.argsort(index, kind="stable")
+    first = np.ones(order.size, dtype=bool)
+    first[1:] = index[order][1:] != index[order][:-1]
+    order = order[first]
+    for name in _NUMERIC:
+        out[name] = np.concatenate(parts[name])[order]
+    for name, column in texts.items():
+        out[name] = np.concatenate(column)[order]
+    out["stats"] = {name: np.concatenate(column)[order] for name, column in stats.items()}
+    out["parameters"] = {path: [values[i] for i in order.tolist()] for path, values in parameters.items()}
+    out["n"] = int(order.size)
+    return out
+
+
+_NUMERIC = {
+    "index": np.int64,
+    "seed": np.uint64,
+    "count": np.int64,
+    "wall_time": np.float64,
+    "compute_time": np.float64,
+    "offset": np.int64,
+    "length": np.int64,
+    "crc": np.int64,
+    "host_code": np.int64,
+    "layout_code": np.int64,
+}
 
 
 def _mean_over(name: str):
@@ -636,11 +678,10 @@ class _LazyProfiles:
         positions = self.positions[key[:grid]]
         extra = self.shape[grid:]
         out = np.full(positions.shape + extra, np.nan)
-        points = self.store.points
         for where in np.ndindex(positions.shape):
             number = positions[where]
             if number >= 0:
-                out[where] = self.getter(points[number].arrays())
+                out[where] = self.getter(self.store._point(int(number)).arrays())
         return out[(Ellipsis, *key[grid:])]
 
 
@@ -902,7 +943,7 @@ class StoreWriter:
                 f"{self.path} holds results of a different study, so it cannot be resumed with this one "
                 f"(the store != this study: {listed or 'the number of points'}); choose another store"
             )
-        self.done = {index for meta, _ in scan.records for index in meta["index"]}
+        self.done = {int(i) for meta, _ in scan.records for i in meta["columns"]["index"]}
         self.end = scan.end
 
     def _create(self) -> None:
@@ -956,36 +997,45 @@ class StoreWriter:
         if not finished:
             return
         assert self.fd is not None, "StoreWriter.commit outside its with block"
-        blobs, where, layouts = [], [], []
-        stats: dict[str, list] = {}
+        blobs, where, layouts, statistics = [], [], [], []
         offset = 0
-        for number, item in enumerate(finished):
+        for item in finished:
             arrays = item.result.to_arrays()
             blob = _encode_arrays(arrays, {"resolved": item.point.resolved})
-            where.append([offset, len(blob), _crc(blob)])
+            where.append((offset, len(blob), _crc(blob)))
             blobs += [blob, b"\0" * _pad(len(blob))]
             offset += len(blob) + _pad(len(blob))
             layouts.append(_layout(arrays))
-            for name, value in point_statistics(item.result).items():
-                stats.setdefault(name, [math.nan] * number).append(value)
-            for column in stats.values():
-                column.extend([math.nan] * (number + 1 - len(column)))
-        now = _now()
-        meta = {
+            statistics.append(point_statistics(item.result))
+        hosts = sorted({item.host for item in finished})
+        unique = sorted(set(layouts))
+        columns = {
             "index": [item.point.index for item in finished],
             "seed": [int(item.point.seed) for item in finished],
             "count": [int(item.result.count) for item in finished],
             "wall_time": [float(item.wall_time) for item in finished],
             "compute_time": [float(item.compute_time) for item in finished],
-            "host": [item.host for item in finished],
-            "finished": [now] * len(finished),
-            "mottle_version": _version(),
-            "parameters": [item.point.parameters for item in finished],
-            "layout": layouts,
-            "blobs": where,
-            "stats": stats,
+            "offset": [w[0] for w in where],
+            "length": [w[1] for w in where],
+            "crc": [w[2] for w in where],
+            "host_code": [hosts.index(item.host) for item in finished],
+            "layout_code": [unique.index(layout) for layout in layouts],
         }
-        self._append(_record(_POINTS, meta, b"".join(blobs)), len(finished))
+        meta = {
+            "n": len(finished),
+            "hosts": hosts,
+            "layouts": unique,
+            "finished": _now(),
+            "mottle_version": _version(),
+            "parameters": {
+                path: [item.point.parameters.get(path) for item in finished] for path in self.study.sweep
+            },
+        }
+        names = sorted({name for stats in statistics for name in stats})
+        stats = {f"stat:{name}": [s.get(name, math.nan) for s in statistics] for name in names}
+        block, meta["columns"] = _columns_block({**columns, **stats}, _NUMERIC)
+        meta.update(columns_bytes=len(block), columns_crc=_crc(block))
+        self._append(_record(_POINTS, meta, block + b"".join(blobs)), len(finished))
         self.done.update(item.point.index for item in finished)
 
     def _append(self, record: bytes, count: int) -> None:
@@ -1005,7 +1055,7 @@ class StoreWriter:
 # --------------------------------------------------------------------------- format 1
 
 
-def convert(old: str | os.PathLike, new: str | os.PathLike) -> Store:
+def convert_store(old: str | os.PathLike, new: str | os.PathLike) -> Store:
     """Write the points of a format-1 (HDF5) store ``old`` into a new format-2 store ``new``.
 
     Needs h5py. The arrays are copied exactly; ``new`` must not exist yet.
@@ -1018,7 +1068,7 @@ def convert(old: str | os.PathLike, new: str | os.PathLike) -> Store:
     try:
         import h5py
     except ImportError:
-        raise StoreError("converting a format-1 store needs h5py: pip install h5py") from None
+        raise StoreError("converting a format-1 store needs h5py: pip install 'mottle[convert]'") from None
     if not old.is_file():
         raise StoreError(f"{old}: no such results store")
     with open(old, "rb") as raw:
@@ -1078,7 +1128,7 @@ __all__ = [
     "StoreError",
     "StoreWriter",
     "StoredPoint",
-    "convert",
+    "convert_store",
     "open_store",
     "point_statistics",
 ]
