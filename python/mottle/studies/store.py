@@ -186,7 +186,7 @@ def point_statistics(result: EnsembleResult) -> dict[str, float]:
     return out
 
 
-def _columns_block(columns: Mapping[str, list], dtypes: Mapping[str, Any]) -> tuple[bytes, dict]:
+def _columns_block(columns: Mapping[str, Any], dtypes: Mapping[str, Any]) -> tuple[bytes, dict]:
     """Columns of numbers as one block of raw arrays (8-byte aligned) and its directory."""
     chunks, directory, offset = [], {}, 0
     for name, values in columns.items():
@@ -1009,7 +1009,7 @@ class StoreWriter:
             statistics.append(point_statistics(item.result))
         hosts = sorted({item.host for item in finished})
         unique = sorted(set(layouts))
-        columns = {
+        columns: dict[str, list] = {
             "index": [item.point.index for item in finished],
             "seed": [int(item.point.seed) for item in finished],
             "count": [int(item.result.count) for item in finished],
