@@ -1038,7 +1038,7 @@ class StoreWriter:
                 path: [item.point.parameters.get(path) for item in finished] for path in self.study.sweep
             },
         }
-        names = sorted({name for stats in statistics for name in stats})
+        names = list(dict.fromkeys(name for stats in statistics for name in stats))
         stats = {f"stat:{name}": [s.get(name, math.nan) for s in statistics] for name in names}
         block, meta["columns"] = _columns_block({**columns, **stats}, _NUMERIC)
         meta.update(columns_bytes=len(block), columns_crc=_crc(block))
