@@ -156,10 +156,9 @@ def _decode_blob(blob: bytes) -> tuple[dict, dict[str, np.ndarray]]:
     directory = json.loads(blob[8 : 8 + length])
     start = 8 + length
     arrays = {}
-    for name, dtype, shape, offset, nbytes in directory.pop("arrays"):
+    for name, dtype, shape, offset, _ in directory.pop("arrays"):
         data = np.frombuffer(blob, dtype=np.dtype(dtype), count=math.prod(shape), offset=start + offset)
         arrays[name] = data.reshape(shape).copy()
-        del nbytes
     return directory, arrays
 
 
