@@ -32,6 +32,8 @@ from ..studies.study import format_value, short_names
 _LENGTH_PATH = re.compile(r"^system\.disorder\.(\d+)\.(start|stop)$")
 MAX_LEGEND = 10
 MAX_PANELS = 4
+MAX_PROFILE_LINES = 12
+"""The momentum figure draws at most this many points (evenly picked), so large studies stay quick."""
 
 
 def _figure(rows: int = 1, columns: int = 1, height: float = 3.6):
@@ -263,9 +265,10 @@ def _profile_figure(store: Store, quantity: str, log: bool):
     panels = _panels(times)
     figure, axes = _figure(len(panels), 1, height=3.0)
     names = short_names(store.sweep)
-    points = store.points
+    shown = _panels_of(len(store.points), MAX_PROFILE_LINES)
+    points = [store.points[n] for n in shown]
     colours = _colours(len(points))
-    curves = [(profiles.axis(n, axis), profiles.get(n, quantity)) for n in range(len(points))]
+    curves = [(profiles.axis(n, axis), profiles.get(n, quantity)) for n in shown]
     for ax, snapshot in zip(axes, panels, strict=True):
         peak = 0.0
         for number, (point, (x, values)) in enumerate(zip(points, curves, strict=True)):
@@ -289,6 +292,8 @@ def _profile_figure(store: Store, quantity: str, log: bool):
             )
     if 1 < len(points):
         axes[0].legend(fontsize="x-small")
+    if len(points) < len(store.points):
+        figure.suptitle(f"{len(points)} of {len(store.points)} points shown", fontsize="small")
     return figure
 
 
@@ -373,7 +378,8 @@ def _panels_of(count: int, most: int) -> list[int]:
 
 
 def momentum_figure(store: Store):
-    """Mean momentum distribution ``<|phi(k)|^2>``, one panel per snapshot, one line per point."""
+    """Mean momentum distribution ``<|phi(k)|^2>``, one panel per snapshot, one line per point (at most
+    :data:`MAX_PROFILE_LINES`, evenly picked)."""
     return _profile_figure(store, "momentum", log=False)
 
 
