@@ -219,6 +219,17 @@ def test_a_damaged_point_is_refused_when_read_and_the_others_still_read(tmp_path
     assert_bitwise(store.points[2].result, results[2])
 
 
+def test_damaged_columns_of_a_commit_are_refused(tmp_path, study, results):
+    path = write_store(tmp_path / "r.mottle", study, results, indices=[0])
+    store = mo.open_store(path)
+    first_blob = store.points[0]._where[0]
+    data = bytearray(path.read_bytes())
+    data[first_blob - 8] ^= 0xFF  # the last byte of the commit's numeric columns
+    path.write_bytes(bytes(data))
+    with pytest.raises(StoreError, match=r"damaged mottle results store \(the columns of the record at byte"):
+        mo.open_store(path)
+
+
 def test_a_store_cut_between_or_inside_commits_reads_what_it_holds(tmp_path, study, results):
     # A copy cut short, or a writer killed during a commit: the complete records read, the
     # rest is reported as unfinished and cut off by the next writer before it appends.

@@ -191,3 +191,18 @@ def test_a_swept_distribution_is_labelled_and_the_report_does_not_crash(tmp_path
     assert "wavenumber=uniform(1.2, 1.4)" in written.summary_text
     for fit in fits:
         assert all(math.isfinite(v) for v in fit.log_transmission)
+
+
+def test_points_on_different_grids_keep_their_scalars_and_leave_profiles_out(tmp_path):
+    text = ZIPPED.split("[sweep]")[0].replace("[run]", "[run]\nsnapshots = [5.0]")
+    study = parse_study(text + '[sweep]\n"system.points" = [256, 512]\n', "grids.toml")
+    store = mo.run_study(study, tmp_path / "g.mottle", progress=False, threads=1)
+    ds = store.dataset()
+    assert ds.transmission_mean.dims == ("points",) and list(ds.points.values) == [256, 512]
+    assert "density" not in ds and "differ in grid" in ds.attrs["profiles"]
+    assert [ds.transmission_mean.values[i] for i in range(2)] == [
+        p.result.transmission.mean for p in store.points
+    ]
+    # The report still draws each point's own profiles.
+    written = reports.report(store, tmp_path / "figures")
+    assert {"density.png", "momentum.png"} <= {path.name for path in written.files}

@@ -284,12 +284,10 @@ def _profile_figure(store: Store, quantity: str, log: bool):
         ax.set_xlabel("x" if quantity == "density" else "wavenumber k")
         ax.set_ylabel("mean |psi(x)|^2" if quantity == "density" else "mean |phi(k)|^2")
         if quantity == "momentum" and peak > 0:
-            populated = np.flatnonzero(np.max([c[1][snapshot] for c in curves], axis=0) > 1e-4 * peak)
-            k = curves[0][0]
-            ax.set_xlim(
-                k[populated[0]] - 0.1 * abs(k[populated[0]]) - 1e-3,
-                k[populated[-1]] + 0.1 * abs(k[populated[-1]]) + 1e-3,
-            )
+            # The populated wavenumbers of every point (their grids may differ).
+            populated = np.concatenate([k[values[snapshot] > 1e-4 * peak] for k, values in curves])
+            low, high = populated.min(), populated.max()
+            ax.set_xlim(low - 0.1 * abs(low) - 1e-3, high + 0.1 * abs(high) + 1e-3)
     if 1 < len(points):
         axes[0].legend(fontsize="x-small")
     if len(points) < len(store.points):
