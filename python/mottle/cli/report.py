@@ -382,11 +382,14 @@ def report(store: Store | str, out: str | Path) -> Report:
     if len(store.points[0].result.times):
         figures.append(("density.png", density_figure(store)))
         figures.append(("momentum.png", momentum_figure(store)))
+    from .report_drive import drive_figures, drive_summary  # driven studies: <p^2>, momentum tails
+
+    figures += drive_figures(store)
     for name, figure in figures:
         path = out / name
         figure.savefig(path, dpi=110)
         done.files.append(path)
-    done.summary_text = summary(store, done.fits)
+    done.summary_text = summary(store, done.fits) + drive_summary(store)
     path = out / "summary.txt"
     path.write_text(done.summary_text, encoding="utf-8")
     done.files.append(path)

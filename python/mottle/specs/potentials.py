@@ -164,7 +164,7 @@ class Cosine(Potential):
 
     amplitude: float
     wavenumber: float
-    phase: float = 0.0
+    phase: float = field(default=0.0, metadata={"type": "distribution"})
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "amplitude", _checks.real("amplitude", self.amplitude))
@@ -275,6 +275,8 @@ class Kicked(TimeDependent):
     circle, ``pa = p2 + p3`` and ``pb = p2 - p3`` are again independent and uniform.
     """
 
+    kind = "kicked"
+
     potential: Potential
     period: float
     start: float = 0.0
@@ -307,10 +309,12 @@ class Modulated(TimeDependent):
     ``phase`` may be drawn per realization (``mo.Uniform(0, 2*math.pi)``).
     """
 
+    kind = "modulated"
+
     potential: Potential
     depth: float
     frequency: float
-    phase: float = 0.0
+    phase: float = field(default=0.0, metadata={"type": "distribution"})
 
     def __post_init__(self) -> None:
         self._check_potential()
@@ -327,6 +331,8 @@ class Switched(TimeDependent):
     ``round(on / step)``, never by accumulated time (a run whose step does not land on them is
     refused, naming a step that does). ``off`` past the run's end means never off.
     """
+
+    kind = "switched"
 
     potential: Potential
     on: float = 0.0
