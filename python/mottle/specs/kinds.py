@@ -145,4 +145,14 @@ def _load() -> None:
     from . import disorder, models, packets, potentials  # noqa: F401
 
 
-__all__ = ["FAMILIES", "LAWS", "Kinded", "SpecField", "distribution", "kinds", "potential", "spec_fields", "values"]
+__all__ = [
+    "FAMILIES",
+    "LAWS",
+    "Kinded",
+    "SpecField",
+    "distribution",
+    "kinds",
+    "potential",
+    "spec_fields",
+    "values",
+]

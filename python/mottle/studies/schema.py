@@ -467,7 +467,9 @@ def _check_packet(content: dict, problems: _Problems) -> dict:
                         "put tabulated potentials in [[system.potential]]",
                     )
             if not trap:
-                problems.add(("packet", "trap"), "holds no potential; give at least one [[packet.trap]] table")
+                problems.add(
+                    ("packet", "trap"), "holds no potential; give at least one [[packet.trap]] table"
+                )
         return out
     if kind != "list":
         out.update(_check_table(rest, spec, ("packet",), problems))
@@ -798,7 +800,6 @@ def _sweep_values(
             return None
         seen.add(token)
     return values
-
 
 
 def _range(raw: dict, key: Key, name: str) -> tuple[list | None, list[str]]:

@@ -289,7 +289,9 @@ def ground_state_of(resolved: Mapping):
         model = _in(("system",), lambda: model_class.from_entry(inputs["model"], {}))
         trap = _entries(inputs["trap"], ("packet", "trap"), "potential", {}, grid)
         where = ("packet",)
-        trap_system = _in(where, lambda: System(grid, model, potential=trap, nonlinearity=inputs["nonlinearity"]))
+        trap_system = _in(
+            where, lambda: System(grid, model, potential=trap, nonlinearity=inputs["nonlinearity"])
+        )
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
@@ -737,9 +739,7 @@ _PARTS = (
     ("packet", lambda key: key.startswith("packet.") or key in _GRID or key in _TRAP),
     (
         "run",
-        lambda key: key.startswith(("run.", "system.potential."))
-        or key in _GRID
-        or bool(_REGION.match(key)),
+        lambda key: key.startswith(("run.", "system.potential.")) or key in _GRID or bool(_REGION.match(key)),
     ),
 )
 
