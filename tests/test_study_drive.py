@@ -125,8 +125,10 @@ def test_modulated_with_a_drawn_phase_and_switched_with_its_default_off():
     text = ROTOR.replace(
         'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }',
         'kind = "modulated"\ndepth = 0.8\nfrequency = 14.05\nphase = { uniform = [0.0, 6.25] }\n'
-        'potential = { kind = "cosine", amplitude = 0.5, wavenumber = 1.0, phase = { normal = [0.0, 1.0] } }\n\n'
-        '[[system.potential]]\nkind = "switched"\non = 2.0\npotential = { kind = "harmonic", frequency = 0.1 }',
+        'potential = { kind = "cosine", amplitude = 0.5, wavenumber = 1.0, '
+        "phase = { normal = [0.0, 1.0] } }\n\n"
+        '[[system.potential]]\nkind = "switched"\non = 2.0\n'
+        'potential = { kind = "harmonic", frequency = 0.1 }',
     ).replace("step = 1.0", "step = 0.01")
     study = parse_study(text, "d.toml")
     system = study.points[0].system()
@@ -222,8 +224,8 @@ def test_sweeps_reach_the_kick_strength_the_modulation_depth_and_hbar():
     # Kicked(Modulated(...)) is refused by the spec; sweep a modulated kick strength instead.
     flat = ROTOR.replace(
         'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }',
-        'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }\n\n'
-        '[[system.potential]]\nkind = "modulated"\ndepth = 0.5\nfrequency = 6.283185307179586\n'
+        'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }'
+        '\n\n[[system.potential]]\nkind = "modulated"\ndepth = 0.5\nfrequency = 6.283185307179586\n'
         'potential = { kind = "harmonic", frequency = 0.1 }',
     )
     assert "static mottle potential" in one_problem(text, r"system\.potential\.0")

@@ -317,7 +317,7 @@ def _normalize(key: Key, value: Any) -> object:
 
 def _check_table(table: dict, spec: dict[str, Key], path: tuple[str, ...], problems: _Problems) -> dict:
     """Type-check ``table`` against ``spec``; returns the normalized entries that passed."""
-    out = {}
+    out: dict[str, Any] = {}
     for name, value in table.items():
         if name not in spec:
             problems.add((*path, name), f"unknown key{_did_you_mean(name, spec)}")
@@ -357,7 +357,8 @@ def _check_entry(entry: dict, kinds: dict, where: tuple[str, ...], problems: _Pr
     if kind not in kinds:
         problems.add(
             (*where, "kind"),
-            f"unknown kind {kind!r}; accepted: {', '.join(map(repr, kinds))}{_did_you_mean(str(kind), kinds)}",
+            f"unknown kind {kind!r}; accepted: {', '.join(map(repr, kinds))}"
+            f"{_did_you_mean(str(kind), kinds)}",
         )
         return {"kind": None}
     rest = {k: v for k, v in entry.items() if k != "kind"}
@@ -773,8 +774,8 @@ def _sweep_values(
     """The values of one swept key (a list or a range); ``repeats`` allows a value twice (zipped)."""
     path = tuple(where[-1].split("."))
     if isinstance(raw, dict):
-        values, why = _range(raw, key, ".".join(path))
-        for message in why:
+        values, messages = _range(raw, key, ".".join(path))
+        for message in messages:
             problems.add(where, message)
         return values
     if not isinstance(raw, list):

@@ -173,18 +173,18 @@ def _entry(entry: Mapping, where: tuple[str, ...], family: str, tables):
 
     maker = kinds(family)[entry["kind"]]
     built = dict(entry)
-    for field in spec_fields(maker):
-        nested = entry.get(field.key)
-        if field.type != "potential" or nested is None:
+    for declared in spec_fields(maker):
+        nested = entry.get(declared.key)
+        if declared.type != "potential" or nested is None:
             continue
         if isinstance(nested, Mapping):
-            built[field.key] = _entry(nested, (*where, field.key), "potential", tables)
+            built[declared.key] = _entry(nested, (*where, declared.key), "potential", tables)
             continue
         total = None
         for index, item in enumerate(nested):
-            term = _entry(item, (*where, field.key, str(index)), "potential", tables)
+            term = _entry(item, (*where, declared.key, str(index)), "potential", tables)
             total = term if total is None else total + term
-        built[field.key] = total
+        built[declared.key] = total
     return _in(where, lambda: maker.from_entry(built, tables), entry)
 
 
