@@ -15,18 +15,23 @@ Cartesian product of the lists, groups and point list (each a
 
 Keys (defaults in brackets): ``[system]`` points, length, center [0], model
 ["continuum" or "lattice"], hbar [1], mass [1] (continuum), hopping [1]
-(lattice), nonlinearity [0], absorber {width, strength}; one potential or
+(lattice), nonlinearity [0], quasimomentum [none: untwisted; a number or
+``{ uniform = [low, high] }``], absorber {width, strength}; one potential or
 disorder entry per registered spec class (:mod:`mottle.specs.kinds`), its
 ``kind`` and its fields as keys (tabulated values: a list or a .npy file, read
-without pickles); the kinds and their keys are listed at the end.
-``[packet]`` kind ["gaussian"; "random": :class:`~mottle.RandomPacket`, "list":
-:class:`~mottle.PacketList`], center, wavenumber, width (numbers; for a random
-packet also ``{ uniform = [low, high] }`` or ``{ normal = [mean, std] }``),
-members (``[[packet.members]]`` tables of a list). ``[run]`` duration, step,
+without pickles; a time-dependent kind's ``potential``: a nested entry, or a
+list of them, swept as ``"system.potential.0.potential.amplitude"``); the kinds
+and their keys are listed at the end. ``[packet]`` kind ["gaussian"; "random":
+:class:`~mottle.RandomPacket`, "list": :class:`~mottle.PacketList`,
+"plane-wave": a mode of the box, "ground-state": :func:`mottle.ground_state` of
+the ``[[packet.trap]]`` potentials, see :func:`ground_state_of`], center,
+wavenumber, width (numbers; for a random packet also ``{ uniform = [low, high] }``
+or ``{ normal = [mean, std] }``), members (``[[packet.members]]`` tables of a
+list), trap, nonlinearity, tolerance [1e-10] (a ground state). ``[run]`` duration, step,
 realizations (the cap with target_stderr), seed [0], seeds ["per-point"], order
 [2], splitting ["strang" or "blanes-moan" by order; "yoshida" on request],
 detector [the disorder region, as in :func:`mottle.ensemble`], snapshots
-[none], precision ["double"], target_stderr [none], spectrum [as
+[none; a list or a range ``{ start, stop, count }``], precision ["double"], target_stderr [none], spectrum [as
 :func:`mottle.ensemble` decides].
 
 Seeds: with ``[run] seeds = "per-point"`` (the default) each point draws its
