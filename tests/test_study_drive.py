@@ -221,14 +221,17 @@ def test_sweeps_reach_the_kick_strength_the_modulation_depth_and_hbar():
         'kind = "modulated"\ndepth = 0.5\nfrequency = 2.0\npotential = { kind = "cosine", '
         "amplitude = 5.0, wavenumber = 1.0 }\n",
     )
-    # Kicked(Modulated(...)) is refused by the spec; sweep a modulated kick strength instead.
+    # A kick of modulated strength (the quasi-periodic kicked rotor's terms), its depth swept.
+    nested = parse_study(text + '\n[sweep]\n"system.potential.0.potential.depth" = [0.2, 0.8]\n', "d.toml")
+    kick = nested.points[1].system().potential
+    assert isinstance(kick, mo.Kicked) and kick.modulation is not None and kick.modulation.depth == 0.8
+    assert kick.modulation.potential == mo.Cosine(5.0, 1.0)
     flat = ROTOR.replace(
         'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }',
         'kind = "kicked"\nperiod = 1.0\npotential = { kind = "cosine", amplitude = 5.0, wavenumber = 1.0 }'
         '\n\n[[system.potential]]\nkind = "modulated"\ndepth = 0.5\nfrequency = 6.283185307179586\n'
         'potential = { kind = "harmonic", frequency = 0.1 }',
     )
-    assert "static mottle potential" in one_problem(text, r"system\.potential\.0")
     swept = flat + (
         '\n[sweep]\n"system.potential.0.potential.amplitude" = [2.0, 4.0]\n'
         '"system.potential.1.depth" = [0.2, 0.8]\n"system.hbar" = [1.0, 2.0]\n'
