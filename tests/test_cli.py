@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 import signal
 import subprocess
@@ -389,12 +390,27 @@ def test_check_fails_on_a_failing_case(monkeypatch, capsys):
     assert "ZeroDivisionError" in out
 
 
+def test_the_demo_condensate_released_into_speckle_grows_tails_that_settle():
+    from mottle.cli.demo import released_condensate
+
+    lines, fits = released_condensate()
+    assert "a condensate released into a speckled guide (mu = 0.225" in lines[0]
+    _, (_, middle, middle_error), (_, late, late_error) = fits
+    # Decaying tails (a finite, positive decay length well inside the window's scale) whose length
+    # has stopped changing between t = 160 and 240 within the errors (common practice: the
+    # stationary tails of Anderson localization are what a localization length is read from).
+    assert 10.0 < late < 200.0 and 10.0 < middle < 200.0
+    assert late_error < 0.5 * late and middle_error < 0.5 * middle
+    assert abs(late - middle) < 2.0 * math.hypot(late_error, middle_error)
+
+
 def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     began = time.monotonic()
     result = mottle("demo", "--out", tmp_path / "demo", "--quiet", timeout=240)
     elapsed = time.monotonic() - began
     assert result.returncode == 0, result.stderr
     assert elapsed < 120
+    assert "a condensate released into a speckled guide" in result.stdout
     for line in (
         f"study:   {tmp_path / 'demo' / 'demo.toml'}",
         f"store:   {tmp_path / 'demo' / 'demo.mottle'}",

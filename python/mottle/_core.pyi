@@ -206,10 +206,16 @@ class _CosineProfile(TypedDict):
 
 _Profile = _TableProfile | _CosineProfile
 
+class _KickModulation(TypedDict):
+    depth: float
+    frequency: float
+    phase: _Draw
+
 class _Kick(TypedDict):
     profile: _Profile
     first: int
     every: int
+    modulation: _KickModulation | None
 
 class _ModulatedTerm(TypedDict):
     kind: Literal["modulated"]

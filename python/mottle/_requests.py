@@ -259,7 +259,15 @@ def drive(system: System, step: float, steps: int) -> _Drive | None:
     for item in drive_steps(system, step, steps):
         if isinstance(item, KickSteps):
             profile = item.term.profile_request(grid, model)
-            kicks.append({"profile": profile, "first": item.first, "every": item.every})
+            kick: _Kick = {"profile": profile, "first": item.first, "every": item.every, "modulation": None}
+            modulation = item.term.modulation
+            if modulation is not None:
+                kick["modulation"] = {
+                    "depth": float(modulation.depth),
+                    "frequency": float(modulation.frequency),
+                    "phase": draw(modulation.phase),
+                }
+            kicks.append(kick)
         elif isinstance(item, SwitchSteps):
             profile = item.term.profile_request(grid, model)
             terms.append({"kind": "switched", "profile": profile, "on": item.on, "off": item.off})

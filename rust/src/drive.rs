@@ -3,7 +3,9 @@
 //! - A kick `V(x) sum_n delta(t - t_n)` is applied exactly, as
 //!   `exp(-i V / hbar)`, at the step boundaries `first + n every` (whole steps
 //!   of the main run), at the start of that step: a pause at a kick's time sees
-//!   the state just before the kick, so kicks fall in `[0, duration)`.
+//!   the state just before the kick, so kicks fall in `[0, duration)`. A
+//!   modulated kick is `exp(-i e(t_n) V / hbar)` with `e` at the kick's time
+//!   `t_n` (computed at each kick; a fixed kick's factor is tabulated once).
 //! - A modulated or switched term `e(t) V(x)` joins each potential factor at
 //!   that factor's own time: the clock advances with the kinetic factors, so a
 //!   factor after kinetic fractions `b_0 .. b_{i-1}` is at
@@ -16,7 +18,8 @@
 //!
 //! Drawn parameters (phases, the quasimomentum) come from the stream of
 //! (`seed`, `DRIVE_PURPOSE`, realization), in a fixed order: the quasimomentum,
-//! then the kicks' and the terms' phases in order.
+//! then each kick's profile phase and its modulation's phase, then the terms'
+//! phases, in order.
 
 use crate::dispersion::Dispersion;
 use crate::error::{invalid, CoreError};
@@ -42,6 +45,17 @@ pub struct Kick {
     pub profile: Profile,
     pub first: usize,
     pub every: usize,
+    /// A kick of strength `1 + depth cos(frequency t_n + phase)` at its time `t_n` (the
+    /// quasi-periodic kicked rotor), or `None`: every kick the same.
+    pub modulation: Option<Modulation>,
+}
+
+/// `1 + depth cos(frequency t + phase)`, the phase drawn per realization.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Modulation {
+    pub depth: f64,
+    pub frequency: f64,
+    pub phase: Draw,
 }
 
 /// How a term's strength `e(t)` depends on time.
@@ -107,11 +121,20 @@ impl Strength {
     }
 }
 
+/// One realization's kick: `V` at steps `first, first + every, ...`, scaled by
+/// `strength` at the kick's time when it is modulated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RealizedKick {
+    pub values: Vec<f64>,
+    pub first: usize,
+    pub every: usize,
+    pub strength: Option<Strength>,
+}
+
 /// The drive of one realization.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Realized {
-    /// `(V, first, every)` per kick.
-    pub kicks: Vec<(Vec<f64>, usize, usize)>,
+    pub kicks: Vec<RealizedKick>,
     pub terms: Vec<(Vec<f64>, Strength)>,
     /// `(beta, 2 pi beta / L, T(k + 2 pi beta / L) in FFT order)` with a twist.
     pub twist: Option<(f64, f64, Vec<f64>)>,
@@ -135,6 +158,26 @@ fn check_draw(name: &str, draw: &Draw) -> Result<(), CoreError> {
         invalid(format!(
             "{name} draw {draw:?} must be finite (low <= high, std >= 0)"
         ))
+    }
+}
+
+impl Modulation {
+    fn validate(&self) -> Result<(), CoreError> {
+        let (depth, frequency) = (self.depth, self.frequency);
+        if !(depth.is_finite() && frequency.is_finite()) {
+            return invalid(format!(
+                "modulation depth {depth} and frequency {frequency} must be finite"
+            ));
+        }
+        check_draw("modulation phase", &self.phase)
+    }
+
+    fn realize(&self, stream: &mut Stream) -> Strength {
+        Strength::Modulated {
+            depth: self.depth,
+            frequency: self.frequency,
+            phase: self.phase.sample(stream),
+        }
     }
 }
 
@@ -198,6 +241,9 @@ impl Drive {
                 return invalid("kicks must be at least one step apart, got every = 0");
             }
             kick.profile.validate(points)?;
+            if let Some(modulation) = &kick.modulation {
+                modulation.validate()?;
+            }
         }
         for term in &self.terms {
             term.profile.validate(points)?;
@@ -206,14 +252,12 @@ impl Drive {
                     depth,
                     frequency,
                     phase,
-                } => {
-                    if !(depth.is_finite() && frequency.is_finite()) {
-                        return invalid(format!(
-                            "modulation depth {depth} and frequency {frequency} must be finite"
-                        ));
-                    }
-                    check_draw("modulation phase", &phase)?;
+                } => Modulation {
+                    depth,
+                    frequency,
+                    phase,
                 }
+                .validate()?,
                 Envelope::Switched { on, off } => {
                     if off.is_some_and(|off| off < on) {
                         return invalid(format!(
@@ -259,7 +303,13 @@ impl Drive {
             .iter()
             .map(|kick| {
                 let values = kick.profile.realize(points, dx, start, &mut stream);
-                (values, kick.first, kick.every)
+                let strength = kick.modulation.map(|m| m.realize(&mut stream));
+                RealizedKick {
+                    values,
+                    first: kick.first,
+                    every: kick.every,
+                    strength,
+                }
             })
             .collect();
         let terms = self
@@ -272,11 +322,12 @@ impl Drive {
                         depth,
                         frequency,
                         phase,
-                    } => Strength::Modulated {
+                    } => Modulation {
                         depth,
                         frequency,
-                        phase: phase.sample(&mut stream),
-                    },
+                        phase,
+                    }
+                    .realize(&mut stream),
                     Envelope::Switched { on, off } => Strength::Switched { on, off },
                 };
                 (values, strength)
@@ -326,6 +377,11 @@ mod tests {
                 },
                 first: 0,
                 every: 1,
+                modulation: Some(Modulation {
+                    depth: 0.5,
+                    frequency: 2.0,
+                    phase: Draw::Uniform(0.0, 6.0),
+                }),
             }],
             terms: vec![],
             twist: Some((

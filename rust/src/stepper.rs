@@ -12,7 +12,7 @@ use std::sync::Arc;
 use num_complex::{Complex, Complex64};
 use rustfft::{Fft, FftPlanner};
 
-use crate::drive::{Realized, Strength};
+use crate::drive::{Realized, RealizedKick, Strength};
 use crate::error::{invalid, CoreError};
 use crate::real::{density, narrow, Real};
 use crate::splitting::{Schedule, Splitting};
@@ -147,11 +147,50 @@ struct PotentialFactors<T: Real> {
     identity: Vec<bool>,
 }
 
+/// A kick at steps `first, first + every, ...`: `exp(-i V / hbar)` tabulated once, or, when its
+/// strength is modulated, `-V / hbar` with the strength evaluated at each kick's time.
+#[derive(Clone)]
+enum KickFactor<T: Real> {
+    Fixed {
+        factor: Vec<Complex<T>>,
+        first: usize,
+        every: usize,
+    },
+    Modulated {
+        angle: Vec<f64>,
+        strength: Strength,
+        first: usize,
+        every: usize,
+    },
+}
+
+impl<T: Real> KickFactor<T> {
+    fn new(kick: &RealizedKick, hbar: f64) -> Self {
+        let (first, every) = (kick.first, kick.every);
+        match kick.strength {
+            None => KickFactor::Fixed {
+                factor: kick
+                    .values
+                    .iter()
+                    .map(|&v| narrow(Complex64::from_polar(1.0, -v / hbar)))
+                    .collect(),
+                first,
+                every,
+            },
+            Some(strength) => KickFactor::Modulated {
+                angle: kick.values.iter().map(|&v| -v / hbar).collect(),
+                strength,
+                first,
+                every,
+            },
+        }
+    }
+}
+
 /// The time-dependent terms of the current realization (`crate::drive`).
 #[derive(Clone)]
 struct Driven<T: Real> {
-    /// `(exp(-i V / hbar), first, every)` per kick.
-    kicks: Vec<(Vec<Complex<T>>, usize, usize)>,
+    kicks: Vec<KickFactor<T>>,
     terms: Vec<(Vec<f64>, Strength)>,
     /// The main run's step index and time at this stepper's first step.
     origin: (usize, f64),
@@ -189,10 +228,34 @@ impl<T: Real> Driven<T> {
         }
     }
 
-    fn kick(&self, psi: &mut [Complex<T>], member: usize) {
-        for (factor, first, every) in &self.kicks {
-            if member >= *first && (member - first).is_multiple_of(*every) {
-                T::multiply(psi, factor);
+    /// The kicks due at main-run step `member`, which starts at `time`.
+    fn kick(&self, psi: &mut [Complex<T>], member: usize, time: f64) {
+        let due =
+            |first: usize, every: usize| member >= first && (member - first).is_multiple_of(every);
+        for kick in &self.kicks {
+            match kick {
+                KickFactor::Fixed {
+                    factor,
+                    first,
+                    every,
+                } => {
+                    if due(*first, *every) {
+                        T::multiply(psi, factor);
+                    }
+                }
+                KickFactor::Modulated {
+                    angle,
+                    strength,
+                    first,
+                    every,
+                } => {
+                    if due(*first, *every) {
+                        let e = strength.at(member, time);
+                        for (z, &a) in psi.iter_mut().zip(angle) {
+                            *z = *z * narrow::<T>(Complex64::from_polar(1.0, e * a));
+                        }
+                    }
+                }
             }
         }
     }
@@ -328,7 +391,7 @@ impl<'a, T: Real> Stepper<'a, T> {
     pub fn set_drive(&mut self, realized: &Realized) -> Result<(), CoreError> {
         let setup = &self.shared.setup;
         let n = setup.points;
-        let sizes_fit = realized.kicks.iter().all(|(v, _, _)| v.len() == n)
+        let sizes_fit = realized.kicks.iter().all(|kick| kick.values.len() == n)
             && realized.terms.iter().all(|(v, _)| v.len() == n)
             && realized.twist.as_ref().is_none_or(|(_, _, t)| t.len() == n);
         if !sizes_fit {
@@ -346,13 +409,7 @@ impl<'a, T: Real> Stepper<'a, T> {
                 kicks: realized
                     .kicks
                     .iter()
-                    .map(|(values, first, every)| {
-                        let factor = values
-                            .iter()
-                            .map(|&v| narrow(Complex64::from_polar(1.0, -v / hbar)))
-                            .collect();
-                        (factor, *first, *every)
-                    })
+                    .map(|kick| KickFactor::new(kick, hbar))
                     .collect(),
                 terms: realized.terms.clone(),
                 origin: (0, 0.0),
@@ -522,7 +579,7 @@ impl<'a, T: Real> Stepper<'a, T> {
                             let parts = [(a[stages], member - 1, start), (a[0], member, start)];
                             driven.apply(psi, &parts, scale);
                         }
-                        driven.kick(psi, member);
+                        driven.kick(psi, member, start);
                     } else {
                         let time = start + driven.stage_times[stage] * h;
                         driven.apply(psi, &[(a[stage], member, time)], scale);
@@ -656,7 +713,7 @@ mod tests {
 #[cfg(test)]
 mod drive_tests {
     use super::*;
-    use crate::drive::Realized;
+    use crate::drive::{Realized, RealizedKick};
 
     fn packet(setup: &Setup) -> Vec<Complex64> {
         (0..setup.points)
@@ -678,7 +735,12 @@ mod drive_tests {
         kicked.prepare(&[0.0; 64]).unwrap();
         kicked
             .set_drive(&Realized {
-                kicks: vec![(profile.clone(), 0, 2)],
+                kicks: vec![RealizedKick {
+                    values: profile.clone(),
+                    first: 0,
+                    every: 2,
+                    strength: None,
+                }],
                 ..Realized::default()
             })
             .unwrap();
@@ -700,6 +762,51 @@ mod drive_tests {
             .map(|(a, b)| (a - b).norm())
             .fold(0.0, f64::max);
         assert!(gap < 1e-12, "{gap}");
+    }
+
+    #[test]
+    fn a_modulated_kick_scales_each_kick_by_its_strength_then() {
+        // Kicks at steps 0, 2, 4 (times 0, 0.2, 0.4) of strength 1 + 0.6 cos(3 t + 0.5).
+        let setup = free_setup(64, 0.1);
+        let shared = Shared::<f64>::new(setup.clone()).unwrap();
+        let never = AtomicBool::new(false);
+        let profile: Vec<f64> = (0..64).map(|j| (j as f64 * 0.3).sin()).collect();
+        let strength = Strength::Modulated {
+            depth: 0.6,
+            frequency: 3.0,
+            phase: 0.5,
+        };
+        let mut kicked = Stepper::new(&shared);
+        kicked.prepare(&[0.0; 64]).unwrap();
+        kicked
+            .set_drive(&Realized {
+                kicks: vec![RealizedKick {
+                    values: profile.clone(),
+                    first: 0,
+                    every: 2,
+                    strength: Some(strength),
+                }],
+                ..Realized::default()
+            })
+            .unwrap();
+        let mut psi = packet(&setup);
+        kicked.advance(&mut psi, 5, &never).unwrap();
+        let mut free = Stepper::new(&shared);
+        free.prepare(&[0.0; 64]).unwrap();
+        let mut by_hand = packet(&setup);
+        for (kick, steps) in [(0, 2), (2, 2), (4, 1)] {
+            let e = 1.0 + 0.6 * (3.0 * kick as f64 * 0.1 + 0.5).cos();
+            for (z, &v) in by_hand.iter_mut().zip(&profile) {
+                *z *= Complex64::from_polar(1.0, -e * v);
+            }
+            free.advance(&mut by_hand, steps, &never).unwrap();
+        }
+        let gap = psi
+            .iter()
+            .zip(&by_hand)
+            .map(|(a, b)| (a - b).norm())
+            .fold(0.0, f64::max);
+        assert!(gap < 1e-13, "{gap}");
     }
 
     #[test]

@@ -8,7 +8,9 @@ and the length of the speckled region; the report fits the localization length
 to <ln T> = a - 2L/xi and the demo prints it beside the Born prediction
 xi = 1/gamma, gamma = C~(2k)/(2k^2) for the speckle's power spectrum
 (Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007)). It runs 2304
-propagations: about half a minute on two cores.
+propagations: about half a minute on two cores. Before the study it shows one
+packet at a barrier and a condensate released from its trap into a speckled
+guide (:func:`released_condensate`).
 """
 
 from __future__ import annotations
@@ -116,6 +118,60 @@ def barrier_warm_up() -> list[str]:
     ]
 
 
+def released_condensate(realizations: int = 48) -> tuple[list[str], list[tuple[float, float, float]]]:
+    """A condensate released from its trap into a speckled guide: its mean density's tails settle.
+
+    The Gross-Pitaevskii ground state of a harmonic trap (omega = 0.02, g = 10, hbar = m = 1:
+    mu = 0.22, Thomas-Fermi radius 33) is held for t = 4 in the trap with the speckle on
+    (V_R = 0.2, grain 1.0), then the trap is switched off. The interaction energy turns into
+    kinetic energy (momenta up to about sqrt(4 mu) = 0.95, below the speckle's Born mobility edge
+    k sigma_R = 1); the expanding cloud's mean log-density grows exponential tails whose decay
+    length, fitted between |x| = 40 and 100, settles while the centre stops spreading. Returns the
+    printed lines and ``(time, xi, stderr)`` per snapshot (the left and right tails averaged).
+    """
+    import warnings
+
+    from ..analysis.fits import log_density_tails
+    from ..dynamics.ensemble import ensemble
+    from ..dynamics.ground import ground_state
+    from ..specs.absorber import Absorber
+    from ..specs.disorder import Speckle
+    from ..specs.grid import Grid
+    from ..specs.potentials import Harmonic, Switched
+    from ..specs.system import System
+
+    grid = Grid(2048, 500.0)
+    trap = Harmonic(0.02)
+    condensate = ground_state(System(grid, potential=trap, nonlinearity=10.0))
+    guide = System(
+        grid,
+        potential=Switched(trap, off=4.0),
+        disorder=Speckle(0.2, 1.0, -210.0, 210.0),
+        nonlinearity=10.0,
+        absorber=Absorber(40.0),
+    )
+    with warnings.catch_warnings():
+        # The absorber check reads the ground state's own tiny kinetic energy (8e-4); the released
+        # cloud's is set by mu, which the layer is designed for.
+        warnings.filterwarnings("ignore", message="absorber width")
+        result = ensemble(guide, condensate, 240.0, 0.1, realizations, snapshots=[80.0, 160.0, 240.0], seed=5)
+    fits = []
+    for snapshot, time_ in enumerate(result.times):
+        tails = log_density_tails(result, (-100.0, -40.0), (40.0, 100.0), snapshot=snapshot)
+        xi = 0.5 * (tails.left.localization_length + tails.right.localization_length)
+        error = 0.5 * math.hypot(tails.left.stderr, tails.right.stderr)
+        fits.append((float(time_), float(xi), float(error)))
+    lines = [
+        f"a condensate released into a speckled guide (mu = {condensate.chemical_potential:.3f}, "
+        f"{realizations} speckle realizations):",
+        "  decay length of the mean density's tails, |x| = 40..100, left and right averaged:",
+        *(f"    t = {t:5.0f}: xi = {xi:6.1f} ± {error:.1f}" for t, xi, error in fits),
+        f"  still in the guide at t = 240: {float(result.norm.mean):.3f} (the rest reached the absorbers)",
+        "",
+    ]
+    return lines, fits
+
+
 def run_demo(
     out: str | Path = "mottle-demo", workers=None, threads=None, progress: bool = True
 ) -> DemoOutcome:
@@ -135,8 +191,10 @@ def run_demo(
     ran = time.perf_counter() - began
     written = report(store, out / "figures")
     seconds = time.perf_counter() - began
+    condensate_lines, _ = released_condensate()
     lines = [
         *barrier_warm_up(),
+        *condensate_lines,
         written.summary_text.rstrip(),
         "",
         "against the Born prediction (Sanchez-Palencia et al., Phys. Rev. Lett. 98, 210401 (2007));",
@@ -162,4 +220,4 @@ def run_demo(
     return DemoOutcome(study_path, store_path, out / "figures", seconds, "\n".join(lines))
 
 
-__all__ = ["STUDY", "DemoOutcome", "born_xi", "run_demo"]
+__all__ = ["STUDY", "DemoOutcome", "born_xi", "released_condensate", "run_demo"]

@@ -457,6 +457,9 @@ def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) ->
     if len(_Profiles(store).axis(0, "time")):
         out.append(("density.png", density_figure(store)))
         out.append(("momentum.png", momentum_figure(store)))
+    from .report_drive import drive_figures  # driven studies: <p^2>, momentum tails
+
+    out += drive_figures(store)
     return out
 
 
@@ -471,12 +474,14 @@ def report(store: Store | str, out: str | Path) -> Report:
     if not len(table):
         done.summary_text = f"{store.path}: no finished points yet\n"
         return done
+    from .report_drive import drive_summary  # driven studies: <p^2> at the first and last snapshot
+
     done.fits = localization_fits(store, table)
     for name, figure in figures(store, table, done.fits):
         path = out / name
         figure.savefig(path, dpi=110)
         done.files.append(path)
-    done.summary_text = summary(store, done.fits, table)
+    done.summary_text = summary(store, done.fits, table) + drive_summary(store)
     path = out / "summary.txt"
     path.write_text(done.summary_text, encoding="utf-8")
     done.files.append(path)

@@ -27,7 +27,8 @@ conventions exactly, so that the two agree to rounding (the tests hold them to
 * Time-dependent terms (:class:`mottle.Kicked`, :class:`mottle.Modulated`,
   :class:`mottle.Switched`): a kick at step boundary ``s`` multiplies by
   ``exp(-i V / hbar)`` at the start of step ``s`` (after that boundary's
-  potential factor), so kicks fall in ``[0, duration)``; a term ``e(t) V(x)``
+  potential factor), so kicks fall in ``[0, duration)`` (a modulated kick by
+  ``exp(-i e(s h) V / hbar)``); a term ``e(t) V(x)``
   joins each potential factor with ``-(h/hbar) sum fraction e(member, time)``,
   the time of factor ``i`` of step ``s`` being ``s h + (b_0 + .. + b_{i-1}) h``
   and a merged factor being the closing part of step ``s - 1`` plus the
@@ -138,7 +139,8 @@ class _Propagator:
             self.kinetic = np.asarray(
                 system.model.kinetic(np.asarray(grid.k) + self.shift, grid.dx), dtype=float
             )
-        self.kicks: list[tuple[np.ndarray, int, int]] = []
+        # (V / hbar, first, every, strength at a kick's time or None)
+        self.kicks: list[tuple[np.ndarray, int, int, Callable[[int, float], float] | None]] = []
         self.terms: list[tuple[np.ndarray, Callable[[int, float], float]]] = []
         self.origin = (0, 0.0)  # main-run step and time at this propagator's first step
         self.done = 0
@@ -150,8 +152,12 @@ class _Propagator:
         grid, model = system.grid, system.model
         for item in drive_steps(system, main_step, main_steps):
             if isinstance(item, KickSteps):
+                modulation = item.term.modulation
+                strength = None
+                if modulation is not None:
+                    strength = _modulation(modulation.depth, modulation.frequency, float(modulation.phase))
                 self.kicks.append(
-                    (np.exp(-1j * item.term.profile(grid, model) / self.hbar), item.first, item.every)
+                    (item.term.profile(grid, model) / self.hbar, item.first, item.every, strength)
                 )
             elif isinstance(item, SwitchSteps):
                 self.terms.append((item.term.profile(grid, model), _switch(item.on, item.off)))
@@ -166,10 +172,11 @@ class _Propagator:
             angle -= self.step / self.hbar * sum(f * strength(s, t) for f, s, t in parts) * values
         return psi * np.exp(1j * angle) if self.terms else psi
 
-    def kick(self, psi: np.ndarray, member: int) -> np.ndarray:
-        for factor, first, every in self.kicks:
+    def kick(self, psi: np.ndarray, member: int, time: float) -> np.ndarray:
+        for angle, first, every, strength in self.kicks:
             if member >= first and (member - first) % every == 0:
-                psi = psi * factor
+                scale = 1.0 if strength is None else strength(member, time)
+                psi = psi * np.exp(-1j * scale * angle)
         return psi
 
     def kinetic_factor(self, fraction: float) -> np.ndarray:
@@ -219,7 +226,7 @@ class _Propagator:
                     psi = self.apply_potential(psi, a[stage], absorbing[stage])
                     psi = self.apply_drive(psi, [(a[stage], member, start + sum(b[:stage]) * h)])
                 if stage == 0:
-                    psi = self.kick(psi, member)
+                    psi = self.kick(psi, member, start)
                 psi = self.apply_kinetic(psi, b[stage])
             self.done += 1
         if steps > 0:

@@ -11,9 +11,11 @@ defaults) and the requests for the Rust core (:mod:`mottle._requests`). A new
 disorder model is therefore its spec class, its Rust generator and its test.
 
 A field's study-file type comes from its annotation (``float``: a number,
-``int``: an integer) unless its metadata says otherwise
-(``field(metadata={"type": "values", "key": "values"})``); its default is the
-dataclass default.
+``int``: an integer, ``Potential``: a nested potential entry) unless its
+metadata says otherwise (``field(metadata={"type": "values", "key": "values"})``;
+``"distribution"``: a number or a draw per realization, written
+``{ uniform = [low, high] }`` or ``{ normal = [mean, std] }`` and built by
+:func:`distribution`); its default is the dataclass default.
 """
 
 from __future__ import annotations
@@ -25,7 +27,9 @@ from typing import Any, ClassVar
 
 FAMILIES = ("potential", "disorder", "packet", "model")
 _REGISTRY: dict[str, dict[str, type[Kinded]]] = {family: {} for family in FAMILIES}
-_TYPES = {"float": "number", "int": "integer"}
+_TYPES = {"float": "number", "int": "integer", "Potential": "potential"}
+# The laws a "distribution" field may name, with their two parameters (mottle.Uniform, mottle.Normal).
+LAWS = {"uniform": ("low", "high"), "normal": ("mean", "std")}
 
 
 class Kinded:
@@ -48,8 +52,22 @@ class Kinded:
 
     @classmethod
     def from_entry(cls, entry: Mapping[str, Any], tables: Mapping[str, Any]) -> Kinded:
-        """The spec from a study-file entry (its keys by name; missing ones take their defaults)."""
-        return cls(**{field.key: entry[field.key] for field in spec_fields(cls) if field.key in entry})
+        """The spec from a study-file entry (its keys by name; missing ones take their defaults).
+
+        A ``"potential"`` field's nested entry (a table with a ``kind``, or a list of them: their
+        sum) is built by :func:`from_entry` of its own kind unless it is a spec already; a
+        ``"distribution"`` field's table by :func:`distribution`."""
+        arguments = {}
+        for field in spec_fields(cls):
+            if field.key not in entry:
+                continue
+            value = entry[field.key]
+            if field.type == "potential":
+                value = potential(value, tables)
+            elif field.type == "distribution":
+                value = distribution(value)
+            arguments[field.key] = value
+        return cls(**arguments)
 
 
 @dataclass(frozen=True)
@@ -86,6 +104,31 @@ def spec_fields(cls: type) -> tuple[SpecField, ...]:
     return tuple(out)
 
 
+def distribution(value: Any) -> Any:
+    """A number as it is, or ``{ uniform = [low, high] }`` / ``{ normal = [mean, std] }`` as
+    :class:`~mottle.Uniform` / :class:`~mottle.Normal` (the one parser of drawn values)."""
+    if not isinstance(value, Mapping):
+        return value
+    from .packets import Normal, Uniform
+
+    ((law, pair),) = value.items()
+    return {"uniform": Uniform, "normal": Normal}[law](*pair)
+
+
+def potential(value: Any, tables: Mapping[str, Any]) -> Any:
+    """A nested potential entry (a table with a ``kind``, or a list of them, summed) as its spec;
+    a spec (or a sum) already built passes through."""
+    if isinstance(value, Kinded):
+        return value
+    if isinstance(value, Mapping):
+        return kinds("potential")[value["kind"]].from_entry(value, tables)
+    total = None
+    for item in value:
+        term = potential(item, tables)
+        total = term if total is None else total + term
+    return total
+
+
 def kinds(family: str) -> dict[str, type[Kinded]]:
     """The registered classes of a family, by kind, in the order they were declared."""
     _load()
@@ -102,4 +145,14 @@ def _load() -> None:
     from . import disorder, models, packets, potentials  # noqa: F401
 
 
-__all__ = ["FAMILIES", "Kinded", "SpecField", "kinds", "spec_fields", "values"]
+__all__ = [
+    "FAMILIES",
+    "LAWS",
+    "Kinded",
+    "SpecField",
+    "distribution",
+    "kinds",
+    "potential",
+    "spec_fields",
+    "values",
+]

@@ -164,7 +164,7 @@ class Cosine(Potential):
 
     amplitude: float
     wavenumber: float
-    phase: float = 0.0
+    phase: float = field(default=0.0, metadata={"type": "distribution"})
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "amplitude", _checks.real("amplitude", self.amplitude))
@@ -200,9 +200,13 @@ class TimeDependent(Potential):
 
     potential: Potential
 
+    def _shape(self) -> Potential:
+        """The static ``V(x)`` this term scales."""
+        return self.potential
+
     def _check_potential(self) -> None:
-        if not isinstance(self.potential, Potential) or any(
-            isinstance(term, TimeDependent) for term in _terms(self.potential)
+        if not isinstance(self._shape(), Potential) or any(
+            isinstance(term, TimeDependent) for term in _terms(self._shape())
         ):
             raise InvalidTypeError(
                 f"{type(self).__name__} needs a static mottle potential (Cosine, Harmonic, Barrier, Tabulated"
@@ -216,7 +220,7 @@ class TimeDependent(Potential):
         """``V(x)`` at the grid points (a drawn cosine phase is taken as its mean here)."""
         return np.asarray(
             sum(
-                (_static_values(term, grid, model) for term in _terms(self.potential)),
+                (_static_values(term, grid, model) for term in _terms(self._shape())),
                 np.zeros(grid.points),
             ),
             dtype=float,
@@ -226,9 +230,10 @@ class TimeDependent(Potential):
         """The core's description of ``V(x)``: a drawn cosine by its parameters, else a table."""
         from .. import _requests
 
-        if isinstance(self.potential, Cosine):
-            return self.potential.profile_request(grid, model)
-        if any(isinstance(t, Cosine) and is_drawn(t.phase) for t in _terms(self.potential)):
+        shape = self._shape()
+        if isinstance(shape, Cosine):
+            return shape.profile_request(grid, model)
+        if any(isinstance(t, Cosine) and is_drawn(t.phase) for t in _terms(shape)):
             raise InvalidParameterError(
                 f"{type(self).__name__}: a drawn Cosine phase works for a lone Cosine profile; "
                 "give each drawn cosine its own time-dependent term"
@@ -236,7 +241,7 @@ class TimeDependent(Potential):
         return _requests.table_profile(self.profile(grid, model))
 
     def validate(self, grid):
-        for term in _terms(self.potential):
+        for term in _terms(self._shape()):
             if isinstance(term, Cosine):
                 continue
             term.validate(grid)
@@ -260,11 +265,30 @@ class Kicked(TimeDependent):
     kick's time sees the state just before that kick. The step must land on the
     kicks: ``period`` and ``start`` must be whole numbers of the run's step
     (a run that does not is refused, naming a step that does).
+
+    A :class:`Modulated` ``potential`` modulates the kicks' strength: the kick at
+    ``t_n`` is ``exp(-i (1 + depth cos(frequency t_n + phase)) V / hbar)``. The
+    quasi-periodic kicked rotor, ``K (1 + eps cos(w2 t + p2) cos(w3 t + p3))``, is the
+    sum ``Kicked(Cosine(K (1 - eps), 1), 1) + Kicked(Modulated(Cosine(K eps / 2, 1), 1,
+    w2 + w3, pa), 1) + Kicked(Modulated(Cosine(K eps / 2, 1), 1, w2 - w3, pb), 1)``
+    (``cos a cos b = [cos(a + b) + cos(a - b)] / 2``); with ``p2, p3`` uniform on the
+    circle, ``pa = p2 + p3`` and ``pb = p2 - p3`` are again independent and uniform.
     """
+
+    kind = "kicked"
 
     potential: Potential
     period: float
     start: float = 0.0
+
+    def _shape(self) -> Potential:
+        inner = self.potential
+        return inner.potential if isinstance(inner, Modulated) else inner
+
+    @property
+    def modulation(self) -> Modulated | None:
+        """The :class:`Modulated` strength of the kicks, or None (every kick the same)."""
+        return self.potential if isinstance(self.potential, Modulated) else None
 
     def __post_init__(self) -> None:
         self._check_potential()
@@ -285,10 +309,12 @@ class Modulated(TimeDependent):
     ``phase`` may be drawn per realization (``mo.Uniform(0, 2*math.pi)``).
     """
 
+    kind = "modulated"
+
     potential: Potential
     depth: float
     frequency: float
-    phase: float = 0.0
+    phase: float = field(default=0.0, metadata={"type": "distribution"})
 
     def __post_init__(self) -> None:
         self._check_potential()
@@ -305,6 +331,8 @@ class Switched(TimeDependent):
     ``round(on / step)``, never by accumulated time (a run whose step does not land on them is
     refused, naming a step that does). ``off`` past the run's end means never off.
     """
+
+    kind = "switched"
 
     potential: Potential
     on: float = 0.0

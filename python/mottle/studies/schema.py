@@ -17,7 +17,7 @@ import numpy as np
 from ..errors import InvalidParameterError
 from ..specs import kinds as _kinds
 
-NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE, BOOLEAN, DISTRIBUTION, TABLES = (
+NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE, BOOLEAN, DISTRIBUTION, TABLES, POTENTIAL, TIMES = (
     "a number",
     "an integer",
     "a string",
@@ -28,9 +28,12 @@ NUMBER, INTEGER, STRING, PAIR, NUMBERS, VALUES, TABLE, BOOLEAN, DISTRIBUTION, TA
     "a boolean",
     "a number, { uniform = [low, high] } or { normal = [mean, std] }",
     "an array of tables",
+    "a potential table { kind = ..., ... } or a list of them",
+    "a list of numbers or a range { start, stop, count }",
 )
-# The distributions a random packet's parameter may take, with their two parameters.
-DISTRIBUTIONS = {"uniform": ("low", "high"), "normal": ("mean", "std")}
+# The distributions a drawn value (a random packet's parameter, a phase, a quasimomentum) may take,
+# with their two parameters: the registry's (mottle.specs.kinds.LAWS).
+DISTRIBUTIONS = _kinds.LAWS
 
 
 @dataclass(frozen=True)
@@ -41,7 +44,13 @@ class Key:
     choices: tuple = ()
 
 
-_TYPES = {"number": NUMBER, "integer": INTEGER, "values": VALUES}
+_TYPES = {
+    "number": NUMBER,
+    "integer": INTEGER,
+    "values": VALUES,
+    "distribution": DISTRIBUTION,
+    "potential": POTENTIAL,
+}
 
 
 def _keys(cls: type) -> dict[str, Key]:
@@ -66,7 +75,18 @@ PACKET_KINDS: dict[str, dict[str, Key]] = {
     "gaussian": _GAUSSIAN_KEYS,
     "random": {name: Key(DISTRIBUTION, required=True) for name in _GAUSSIAN_KEYS},
     "list": {"members": Key(TABLES, required=True)},
+    # The plane wave exp(i wavenumber x) / sqrt(length): the kicked rotor's momentum eigenstate.
+    "plane-wave": {"wavenumber": Key(NUMBER, default=0.0)},
+    # mottle.ground_state of the study's grid and model with the [[packet.trap]] potentials (summed)
+    # and the nonlinearity (by default the system's), computed once per distinct set of them.
+    "ground-state": {
+        "trap": Key(TABLES, required=True),
+        "nonlinearity": Key(NUMBER),
+        "tolerance": Key(NUMBER, default=1e-10),
+    },
 }
+# Packet kinds whose keys are not a Gaussian's.
+_OWN_KEYS = ("list", "plane-wave", "ground-state")
 _MODEL_SYSTEM_KEYS = {name: key for keys in MODELS.values() for name, key in keys.items()}
 
 SCHEMA: dict[str, dict[str, Key]] = {
@@ -78,6 +98,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "model": Key(STRING, default="continuum", choices=tuple(MODEL_KEYS)),
         **_MODEL_SYSTEM_KEYS,
         "nonlinearity": Key(NUMBER, default=0.0),
+        # No default: left out, it leaves the canonical form of the studies written before it.
+        "quasimomentum": Key(DISTRIBUTION),
         "absorber": Key(TABLE),
         "potential": Key(TABLE),
         "disorder": Key(TABLE),
@@ -86,6 +108,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
         **{name: Key(DISTRIBUTION) for name in _GAUSSIAN_KEYS},
         "kind": Key(STRING, choices=tuple(PACKET_KINDS)),
         "members": Key(TABLES),
+        "trap": Key(TABLES),
+        "nonlinearity": Key(NUMBER),
+        "tolerance": Key(NUMBER),
     },
     "run": {
         "duration": Key(NUMBER, required=True),
@@ -96,7 +121,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "order": Key(INTEGER, default=2),
         "splitting": Key(STRING, choices=("strang", "yoshida", "blanes-moan")),
         "detector": Key(PAIR),
-        "snapshots": Key(NUMBERS, default=[]),
+        "snapshots": Key(TIMES, default=[]),
         "precision": Key(STRING, default="double", choices=("double", "single")),
         # No defaults: left out, they leave the canonical form of the studies written before them.
         "target_stderr": Key(NUMBER),
@@ -131,18 +156,27 @@ def _key_lines(text: str) -> dict[tuple[str, ...], int]:
     dotted = rf"{key_part}(?:\s*\.\s*{key_part})*"
     for number, line in enumerate(text.splitlines(), start=1):
         if match := re.match(rf"^\s*\[\[\s*({dotted})\s*\]\]", line):
-            path = _split_key(match.group(1))
+            path = _in_array(_split_key(match.group(1)), counters)
             index = counters.get(path, -1) + 1
             counters[path] = index
             table = (*path, str(index))
             lines.setdefault(path, number)
             lines.setdefault(table, number)
         elif match := re.match(rf"^\s*\[\s*({dotted})\s*\]", line):
-            table = _split_key(match.group(1))
+            table = _in_array(_split_key(match.group(1)), counters)
             lines.setdefault(table, number)
         elif match := re.match(rf"^\s*({dotted})\s*=", line):
             lines.setdefault((*table, *_split_key(match.group(1))), number)
     return lines
+
+
+def _in_array(path: tuple[str, ...], counters: dict[tuple[str, ...], int]) -> tuple[str, ...]:
+    """A table header below an array of tables (``[system.potential.potential]`` after
+    ``[[system.potential]]``) belongs to the array's latest entry: insert its index."""
+    for length in range(len(path) - 1, 0, -1):
+        if path[:length] in counters:
+            return (*path[:length], str(counters[path[:length]]), *path[length:])
+    return path
 
 
 def _split_key(key: str) -> tuple[str, ...]:
@@ -213,6 +247,17 @@ def _type_problem(key: Key, value: object) -> str | None:
         return f"must be a list of two numbers [left, right], {got}"
     if key.kind == NUMBERS and not (isinstance(value, list) and all(is_number(v) for v in value)):
         return f"must be a list of numbers, {got}"
+    if key.kind == TIMES:
+        if isinstance(value, dict):
+            _, why = _range(value, Key(NUMBER), "the range")
+            return "; ".join(why) or None
+        if not (isinstance(value, list) and all(is_number(v) for v in value)):
+            return f"must be a list of numbers or a range {{ start, stop, count }}, {got}"
+    if key.kind == POTENTIAL and not (
+        isinstance(value, dict)
+        or (isinstance(value, list) and value and all(isinstance(v, dict) for v in value))
+    ):
+        return f"must be a potential table {{ kind = ..., ... }} or a list of them (summed), {got}"
     if key.kind == VALUES and not (
         isinstance(value, str) or (isinstance(value, list) and all(is_number(v) for v in value))
     ):
@@ -254,8 +299,10 @@ def _normalize(key: Key, value: Any) -> object:
         return float(value)
     if key.kind == INTEGER:
         return int(value)
-    if key.kind in (PAIR, NUMBERS) and isinstance(value, list):
+    if key.kind in (PAIR, NUMBERS, TIMES) and isinstance(value, list):
         return [float(v) for v in value]
+    if key.kind == TIMES and isinstance(value, dict):
+        return _range(value, Key(NUMBER), "the range")[0]
     if key.kind == VALUES and isinstance(value, list):
         return [float(v) for v in value]
     if key.kind == DISTRIBUTION:
@@ -270,7 +317,7 @@ def _normalize(key: Key, value: Any) -> object:
 
 def _check_table(table: dict, spec: dict[str, Key], path: tuple[str, ...], problems: _Problems) -> dict:
     """Type-check ``table`` against ``spec``; returns the normalized entries that passed."""
-    out = {}
+    out: dict[str, Any] = {}
     for name, value in table.items():
         if name not in spec:
             problems.add((*path, name), f"unknown key{_did_you_mean(name, spec)}")
@@ -279,8 +326,18 @@ def _check_table(table: dict, spec: dict[str, Key], path: tuple[str, ...], probl
         if why:
             problems.add((*path, name), why)
             continue
+        if spec[name].kind == POTENTIAL:
+            out[name] = _check_nested(value, (*path, name), problems)
+            continue
         out[name] = _normalize(spec[name], value)
     return out
+
+
+def _check_nested(value: dict | list, path: tuple[str, ...], problems: _Problems) -> dict | list:
+    """A nested potential (of a time-dependent term): one entry, or a list of entries (summed)."""
+    if isinstance(value, dict):
+        return _check_entry(value, POTENTIAL_KINDS, path, problems)
+    return [_check_entry(entry, POTENTIAL_KINDS, (*path, str(i)), problems) for i, entry in enumerate(value)]
 
 
 def _check_entries(entries, kinds: dict, path: tuple[str, ...], problems: _Problems) -> list[dict]:
@@ -289,25 +346,43 @@ def _check_entries(entries, kinds: dict, path: tuple[str, ...], problems: _Probl
     if not isinstance(entries, list) or not all(isinstance(entry, dict) for entry in entries):
         problems.add(path, f"must be an array of tables ([[{'.'.join(path)}]]), got {_describe(entries)}")
         return []
-    out = []
+    return [_check_entry(entry, kinds, (*path, str(index)), problems) for index, entry in enumerate(entries)]
+
+
+def _check_entry(entry: dict, kinds: dict, where: tuple[str, ...], problems: _Problems) -> dict:
+    kind = entry.get("kind")
+    if kind is None:
+        problems.add(where, f"needs a kind: one of {', '.join(map(repr, kinds))}")
+        return {"kind": None}
+    if kind not in kinds:
+        problems.add(
+            (*where, "kind"),
+            f"unknown kind {kind!r}; accepted: {', '.join(map(repr, kinds))}"
+            f"{_did_you_mean(str(kind), kinds)}",
+        )
+        return {"kind": None}
+    rest = {k: v for k, v in entry.items() if k != "kind"}
+    return {"kind": kind, **_check_table(rest, kinds[kind], where, problems)}
+
+
+def nested_entries(entries, path: tuple[str, ...], kinds: dict):
+    """``(path, entry, keys)`` of each checked entry and, depth first, of the potentials nested in it
+    (a time-dependent term's ``potential``: one table, or a list of them)."""
     for index, entry in enumerate(entries):
-        where = (*path, str(index))
-        kind = entry.get("kind")
-        if kind is None:
-            problems.add(where, f"needs a kind: one of {', '.join(map(repr, kinds))}")
-            out.append({"kind": None})
+        yield from _walk(entry, (*path, str(index)), kinds)
+
+
+def _walk(entry: dict, where: tuple[str, ...], kinds: dict):
+    keys = kinds.get(entry.get("kind"), {})
+    yield where, entry, keys
+    for name, key in keys.items():
+        value = entry.get(name)
+        if key.kind != POTENTIAL or value is None:
             continue
-        if kind not in kinds:
-            problems.add(
-                (*where, "kind"),
-                f"unknown kind {kind!r}; accepted: {', '.join(map(repr, kinds))}"
-                f"{_did_you_mean(str(kind), kinds)}",
-            )
-            out.append({"kind": None})
-            continue
-        rest = {k: v for k, v in entry.items() if k != "kind"}
-        out.append({"kind": kind, **_check_table(rest, kinds[kind], where, problems)})
-    return out
+        if isinstance(value, dict):
+            yield from _walk(value, (*where, name), POTENTIAL_KINDS)
+        else:
+            yield from nested_entries(value, (*where, name), POTENTIAL_KINDS)
 
 
 def _check_document(document: dict, problems: _Problems) -> dict:
@@ -371,8 +446,32 @@ def _check_packet(content: dict, problems: _Problems) -> dict:
             )
         elif kind != "list" and name == "members":
             problems.add(("packet", name), f'members belong to kind = "list", not to a {kind!r} packet')
+        elif name not in spec and name in SCHEMA["packet"]:
+            # A key of another packet kind (unknown keys get the closest name from _check_table).
+            owners = [other for other, keys in PACKET_KINDS.items() if name in keys]
+            problems.add(
+                ("packet", name),
+                f"belongs to a packet of kind {' or '.join(map(repr, owners))}, not to a {kind!r} packet",
+            )
         else:
             rest[name] = value
+    if kind == "ground-state":
+        trap = rest.pop("trap", None)
+        out.update(_check_table(rest, spec, ("packet",), problems))
+        if trap is not None:
+            out["trap"] = _check_entries(trap, POTENTIAL_KINDS, ("packet", "trap"), problems)
+            for where, entry, _ in nested_entries(out["trap"], ("packet", "trap"), POTENTIAL_KINDS):
+                if entry.get("kind") == "tabulated":
+                    problems.add(
+                        where,
+                        "a trap takes potentials given by their parameters, not 'tabulated' values; "
+                        "put tabulated potentials in [[system.potential]]",
+                    )
+            if not trap:
+                problems.add(
+                    ("packet", "trap"), "holds no potential; give at least one [[packet.trap]] table"
+                )
+        return out
     if kind != "list":
         out.update(_check_table(rest, spec, ("packet",), problems))
         return out
@@ -417,24 +516,8 @@ def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | No
         return _packet_key_at(rest, document)
     if section == "system" and name in ARRAYS:
         entries = document.get("system", {}).get(name, [])
-        if len(rest) < 3:
-            return (
-                None,
-                f"name an entry and a key, e.g. system.{name}.0.{'stop' if name == 'disorder' else 'height'}",
-            )
-        if not rest[1].isdigit() or int(rest[1]) >= len(entries):
-            have = f"entries 0..{len(entries) - 1}" if entries else "no entries"
-            return None, f"system.{name} has {have}; {rest[1]!r} names none of them"
-        entry = entries[int(rest[1])]
-        kind = entry.get("kind")
-        if kind is None:
-            return None, f"system.{name}.{rest[1]} has no valid kind"
-        if rest[2] == "kind":
-            return None, "the kind of an entry cannot be swept; write one study per kind"
-        fields = ARRAYS[name][kind]
-        if rest[2] not in fields or len(rest) > 3:
-            return None, f"a {kind!r} entry has no key {'.'.join(rest[2:])!r}{_did_you_mean(rest[2], fields)}"
-        return fields[rest[2]], None
+        example = "stop" if name == "disorder" else "height"
+        return _entry_key_at(entries, ARRAYS[name], rest[1:], f"system.{name}", example)
     if section == "system" and name == "absorber":
         if "absorber" not in document.get("system", {}):
             return None, "system.absorber is not set in the study; add it to sweep its keys"
@@ -445,6 +528,40 @@ def _key_at(path: tuple[str, ...], document: dict) -> tuple[Key | None, str | No
     if name not in spec or len(rest) > 1:
         return None, f"[{section}] has no key {'.'.join(rest)!r}{_did_you_mean(name, spec)}"
     return spec[name], None
+
+
+def _entry_key_at(
+    entries: list, kinds: dict, rest: tuple[str, ...], prefix: str, example: str = "height"
+) -> tuple[Key | None, str | None]:
+    """The key ``rest`` = (entry number, key, ...) names in an array of entries (``prefix``)."""
+    if len(rest) < 2:
+        return None, f"name an entry and a key, e.g. {prefix}.0.{example}"
+    if not rest[0].isdigit() or int(rest[0]) >= len(entries):
+        have = f"entries 0..{len(entries) - 1}" if entries else "no entries"
+        return None, f"{prefix} has {have}; {rest[0]!r} names none of them"
+    return _one_entry_key_at(entries[int(rest[0])], kinds, rest[1:], f"{prefix}.{rest[0]}")
+
+
+def _one_entry_key_at(entry: dict, kinds: dict, rest: tuple[str, ...], prefix: str):
+    """The key ``rest`` = (key, ...) names in one entry; into a nested potential's keys too."""
+    kind = entry.get("kind")
+    if kind is None:
+        return None, f"{prefix} has no valid kind"
+    if rest[0] == "kind":
+        return None, "the kind of an entry cannot be swept; write one study per kind"
+    fields = kinds[kind]
+    field = fields.get(rest[0])
+    if field is not None and field.kind == POTENTIAL:
+        nested = entry.get(rest[0])
+        where = f"{prefix}.{rest[0]}"
+        if len(rest) == 1 or nested is None:
+            return None, f"{where} is a whole potential; sweep one of its keys, e.g. {where}.amplitude"
+        if isinstance(nested, dict):
+            return _one_entry_key_at(nested, POTENTIAL_KINDS, rest[1:], where)
+        return _entry_key_at(nested, POTENTIAL_KINDS, rest[1:], where, "amplitude")
+    if field is None or len(rest) > 1:
+        return None, f"a {kind!r} entry has no key {'.'.join(rest)!r}{_did_you_mean(rest[0], fields)}"
+    return field, None
 
 
 def _packet_key_at(rest: tuple[str, ...], document: dict) -> tuple[Key | None, str | None]:
@@ -471,6 +588,8 @@ def _packet_key_at(rest: tuple[str, ...], document: dict) -> tuple[Key | None, s
     spec = PACKET_KINDS.get(kind, _GAUSSIAN_KEYS)
     if name == "members":
         return None, f'members belong to kind = "list", not to a {kind!r} packet'
+    if kind == "ground-state" and name == "trap":
+        return _entry_key_at(packet.get("trap", []), POTENTIAL_KINDS, rest[1:], "packet.trap", "frequency")
     if name in spec and len(rest) > 1 and spec[name].kind == DISTRIBUTION:
         return (
             None,
@@ -653,54 +772,11 @@ def _sweep_values(
     raw: object, key: Key, where: tuple[str, ...], problems: _Problems, repeats: bool = False
 ) -> list | None:
     """The values of one swept key (a list or a range); ``repeats`` allows a value twice (zipped)."""
-    from ..limits import STUDY_POINTS
-
     path = tuple(where[-1].split("."))
     if isinstance(raw, dict):
-        unknown = [k for k in raw if k not in RANGE_KEYS]
-        for name in unknown:
-            problems.add(where, f"a range has no key {name!r}{_did_you_mean(name, RANGE_KEYS)}")
-        missing = [k for k in ("start", "stop", "count") if k not in raw]
-        if missing:
-            problems.add(where, f"a range needs start, stop and count; missing {', '.join(missing)}")
-        if unknown or missing:
-            return None
-        start, stop, count, scale = raw["start"], raw["stop"], raw["count"], raw.get("scale", "linear")
-        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in (start, stop)):
-            problems.add(
-                where, f"range start and stop must be numbers, got {_describe(start)} and {_describe(stop)}"
-            )
-            return None
-        if isinstance(count, bool) or not isinstance(count, int) or count < 1:
-            problems.add(where, f"range count must be an integer >= 1, got {_describe(count)}")
-            return None
-        if count > STUDY_POINTS:
-            problems.add(
-                where, f"range count {count:,} is more than the {STUDY_POINTS:,} points a study may have"
-            )
-            return None
-        if scale not in ("linear", "log"):
-            problems.add(where, f"range scale must be 'linear' or 'log', got {_describe(scale)}")
-            return None
-        if key.kind not in (NUMBER, INTEGER, DISTRIBUTION):
-            problems.add(where, f"a range gives numbers, but {'.'.join(path)} must be {key.kind}")
-            return None
-        if scale == "log" and not (start > 0 and stop > 0):
-            problems.add(where, f"a log range needs start > 0 and stop > 0, got start={start}, stop={stop}")
-            return None
-        values: list[Any]
-        if count == 1:
-            values = [float(start)]
-        elif scale == "log":
-            values = np.geomspace(start, stop, count).tolist()
-        else:
-            values = np.linspace(start, stop, count).tolist()
-        if key.kind == INTEGER:
-            rounded = [round(v) for v in values]
-            if any(abs(r - v) > 1e-9 * max(1.0, abs(v)) for r, v in zip(rounded, values, strict=False)):
-                problems.add(where, f"range gives non-integer values {values} for an integer key")
-                return None
-            values = rounded
+        values, messages = _range(raw, key, ".".join(path))
+        for message in messages:
+            problems.add(where, message)
         return values
     if not isinstance(raw, list):
         problems.add(
@@ -727,6 +803,55 @@ def _sweep_values(
     return values
 
 
+def _range(raw: dict, key: Key, name: str) -> tuple[list | None, list[str]]:
+    """The values of a range ``{ start, stop, count, scale }`` for ``key`` (``name`` in messages),
+    or None and each problem with it."""
+    from ..limits import STUDY_POINTS
+
+    why: list[str] = []
+    unknown = [k for k in raw if k not in RANGE_KEYS]
+    for other in unknown:
+        why.append(f"a range has no key {other!r}{_did_you_mean(other, RANGE_KEYS)}")
+    missing = [k for k in ("start", "stop", "count") if k not in raw]
+    if missing:
+        why.append(f"a range needs start, stop and count; missing {', '.join(missing)}")
+    if unknown or missing:
+        return None, why
+    start, stop, count, scale = raw["start"], raw["stop"], raw["count"], raw.get("scale", "linear")
+    if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in (start, stop)):
+        why.append(f"range start and stop must be numbers, got {_describe(start)} and {_describe(stop)}")
+        return None, why
+    if isinstance(count, bool) or not isinstance(count, int) or count < 1:
+        why.append(f"range count must be an integer >= 1, got {_describe(count)}")
+        return None, why
+    if count > STUDY_POINTS:
+        why.append(f"range count {count:,} is more than the {STUDY_POINTS:,} points a study may have")
+        return None, why
+    if scale not in ("linear", "log"):
+        why.append(f"range scale must be 'linear' or 'log', got {_describe(scale)}")
+        return None, why
+    if key.kind not in (NUMBER, INTEGER, DISTRIBUTION):
+        why.append(f"a range gives numbers, but {name} must be {key.kind}")
+        return None, why
+    if scale == "log" and not (start > 0 and stop > 0):
+        why.append(f"a log range needs start > 0 and stop > 0, got start={start}, stop={stop}")
+        return None, why
+    values: list[Any]
+    if count == 1:
+        values = [float(start)]
+    elif scale == "log":
+        values = np.geomspace(start, stop, count).tolist()
+    else:
+        values = np.linspace(start, stop, count).tolist()
+    if key.kind == INTEGER:
+        rounded = [round(v) for v in values]
+        if any(abs(r - v) > 1e-9 * max(1.0, abs(v)) for r, v in zip(rounded, values, strict=False)):
+            why.append(f"range gives non-integer values {values} for an integer key")
+            return None, why
+        values = rounded
+    return values, why
+
+
 def _fill_defaults(resolved: dict) -> dict:
     for section, spec in SCHEMA.items():
         table = resolved.setdefault(section, {})
@@ -740,9 +865,16 @@ def _fill_defaults(resolved: dict) -> dict:
             and system.get(name) == SCHEMA["system"][name].default
         ):
             system.pop(name)
-    for name, kinds in ARRAYS.items():
-        for entry in system.setdefault(name, []):
-            for field_name, key in kinds.get(entry.get("kind"), {}).items():
+    packet = resolved["packet"]
+    arrays = [(system.setdefault(name, []), ("system", name), kinds) for name, kinds in ARRAYS.items()]
+    if packet.get("kind") == "ground-state":
+        arrays.append((packet.get("trap", []), ("packet", "trap"), POTENTIAL_KINDS))
+    for name, key in PACKET_KINDS.get(packet.get("kind", PACKET_KIND), {}).items():
+        if name not in packet and key.default is not None:
+            packet[name] = key.default
+    for entries, path, kinds in arrays:
+        for _, entry, keys in nested_entries(entries, path, kinds):
+            for field_name, key in keys.items():
                 if field_name not in entry and key.default is not None:
                     entry[field_name] = key.default
     return resolved
@@ -771,11 +903,14 @@ def _required(resolved: dict, problems: list[tuple[tuple[str, ...], str]]) -> No
         for name, key in _GAUSSIAN_KEYS.items():
             if key.required and name not in member:
                 problems.append((("packet", "members", str(index), name), f"is required ({key.kind})"))
-    for name, kinds in ARRAYS.items():
-        for index, entry in enumerate(resolved["system"].get(name, [])):
-            for field_name, key in kinds.get(entry.get("kind"), {}).items():
+    arrays = [(resolved["system"].get(name, []), ("system", name), kinds) for name, kinds in ARRAYS.items()]
+    if packet.get("kind") == "ground-state":
+        arrays.append((packet.get("trap", []), ("packet", "trap"), POTENTIAL_KINDS))
+    for entries, path, kinds in arrays:
+        for where, entry, keys in nested_entries(entries, path, kinds):
+            for field_name, key in keys.items():
                 if key.required and field_name not in entry:
-                    problems.append((("system", name, str(index), field_name), f"is required ({key.kind})"))
+                    problems.append(((*where, field_name), f"is required ({key.kind})"))
     absorber = resolved["system"].get("absorber")
     if absorber is not None and "width" not in absorber:
         problems.append((("system", "absorber", "width"), f"is required ({NUMBER})"))

@@ -15,18 +15,23 @@ Cartesian product of the lists, groups and point list (each a
 
 Keys (defaults in brackets): ``[system]`` points, length, center [0], model
 ["continuum" or "lattice"], hbar [1], mass [1] (continuum), hopping [1]
-(lattice), nonlinearity [0], absorber {width, strength}; one potential or
+(lattice), nonlinearity [0], quasimomentum [none: untwisted; a number or
+``{ uniform = [low, high] }``], absorber {width, strength}; one potential or
 disorder entry per registered spec class (:mod:`mottle.specs.kinds`), its
 ``kind`` and its fields as keys (tabulated values: a list or a .npy file, read
-without pickles); the kinds and their keys are listed at the end.
-``[packet]`` kind ["gaussian"; "random": :class:`~mottle.RandomPacket`, "list":
-:class:`~mottle.PacketList`], center, wavenumber, width (numbers; for a random
-packet also ``{ uniform = [low, high] }`` or ``{ normal = [mean, std] }``),
-members (``[[packet.members]]`` tables of a list). ``[run]`` duration, step,
+without pickles; a time-dependent kind's ``potential``: a nested entry, or a
+list of them, swept as ``"system.potential.0.potential.amplitude"``); the kinds
+and their keys are listed at the end. ``[packet]`` kind ["gaussian"; "random":
+:class:`~mottle.RandomPacket`, "list": :class:`~mottle.PacketList`,
+"plane-wave": a mode of the box, "ground-state": :func:`mottle.ground_state` of
+the ``[[packet.trap]]`` potentials, see :func:`ground_state_of`], center,
+wavenumber, width (numbers; for a random packet also ``{ uniform = [low, high] }``
+or ``{ normal = [mean, std] }``), members (``[[packet.members]]`` tables of a
+list), trap, nonlinearity, tolerance [1e-10] (a ground state). ``[run]`` duration, step,
 realizations (the cap with target_stderr), seed [0], seeds ["per-point"], order
 [2], splitting ["strang" or "blanes-moan" by order; "yoshida" on request],
 detector [the disorder region, as in :func:`mottle.ensemble`], snapshots
-[none], precision ["double"], target_stderr [none], spectrum [as
+[none; a list or a range ``{ start, stop, count }``], precision ["double"], target_stderr [none], spectrum [as
 :func:`mottle.ensemble` decides].
 
 Seeds: with ``[run] seeds = "per-point"`` (the default) each point draws its
@@ -65,6 +70,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InvalidParameterError, InvalidTypeError
+from ..specs.kinds import distribution
 from .schema import (
     ARRAYS,
     METADATA_SECTIONS,
@@ -124,20 +130,19 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
     from ..specs.system import System
 
     system = resolved["system"]
-    grid = _in(("system",), lambda: Grid(system["points"], system["length"], system.get("center", 0.0)))
+    twist = {}
+    if system.get("quasimomentum") is not None:
+        twist["quasimomentum"] = _in(
+            ("system", "quasimomentum"), lambda: distribution(system["quasimomentum"])
+        )
+    grid = _in(
+        ("system",), lambda: Grid(system["points"], system["length"], system.get("center", 0.0), **twist)
+    )
     model_class = kinds("model")[system.get("model", "continuum")]
     model = _in(("system",), lambda: model_class.from_entry(system, tables))
-    makers = {name: kinds(name) for name in ARRAYS}
     parts = {}
     for name in ARRAYS:
-        total = None
-        for index, entry in enumerate(system.get(name, [])):
-            where = ("system", name, str(index))
-            maker = makers[name][entry["kind"]]
-            term = _in(where, lambda entry=entry, maker=maker: maker.from_entry(entry, tables), entry)
-            _in(where, lambda term=term: term.validate(grid), entry)
-            total = term if total is None else total + term
-        parts[name] = total
+        parts[name] = _entries(system.get(name, []), ("system", name), name, tables, grid)
     absorber = None
     if "absorber" in system:
         spec = system["absorber"]
@@ -156,29 +161,59 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
     )
 
 
+def _entries(entries, path: tuple[str, ...], family: str, tables, grid):
+    """The sum of an array of entries (None when empty), each built and checked on the grid."""
+    total = None
+    for index, entry in enumerate(entries):
+        where = (*path, str(index))
+        term = _entry(entry, where, family, tables)
+        _in(where, lambda term=term: term.validate(grid), entry)
+        total = term if total is None else total + term
+    return total
+
+
+def _entry(entry: Mapping, where: tuple[str, ...], family: str, tables):
+    """One entry's spec; the potentials nested in it first, each under its own key path."""
+    from ..specs.kinds import kinds, spec_fields
+
+    maker = kinds(family)[entry["kind"]]
+    built = dict(entry)
+    for declared in spec_fields(maker):
+        nested = entry.get(declared.key)
+        if declared.type != "potential" or nested is None:
+            continue
+        if isinstance(nested, Mapping):
+            built[declared.key] = _entry(nested, (*where, declared.key), "potential", tables)
+            continue
+        total = None
+        for index, item in enumerate(nested):
+            term = _entry(item, (*where, declared.key, str(index)), "potential", tables)
+            total = term if total is None else total + term
+        built[declared.key] = total
+    return _in(where, lambda: maker.from_entry(built, tables), entry)
+
+
 def build_packet(resolved: Mapping, system=None):
     """The packet of a resolved parameter set, checked against the grid (or the system's) if given:
     a :class:`~mottle.GaussianPacket`, a :class:`~mottle.RandomPacket` (``kind = "random"``) or a
     :class:`~mottle.PacketList` (``kind = "list"``)."""
     from ..specs.kinds import kinds
-    from ..specs.packets import Normal, PacketList, RandomPacket, Uniform
+    from ..specs.packets import PacketList, RandomPacket
     from .schema import PACKET_KIND
 
     spec = resolved["packet"]
     kind = spec.get("kind", PACKET_KIND)
     gaussian = kinds("packet")[PACKET_KIND]
     if kind == "random":
-        laws = {"uniform": Uniform, "normal": Normal}
-
-        def draw(name):
-            value = spec[name]
-            if not isinstance(value, Mapping):
-                return value
-            ((law, pair),) = value.items()
-            return _in(("packet", name), lambda: laws[law](*pair))
-
-        drawn = {name: draw(name) for name in ("center", "wavenumber", "width")}
+        drawn = {
+            name: _in(("packet", name), lambda name=name: distribution(spec[name]))
+            for name in ("center", "wavenumber", "width")
+        }
         packet = _in(("packet",), lambda: RandomPacket(**drawn), spec)
+    elif kind == "plane-wave":
+        packet = _in(("packet", "wavenumber"), lambda: _plane_wave(resolved))
+    elif kind == "ground-state":
+        packet = ground_state_of(resolved)
     elif kind == "list":
         members = [
             _in(("packet", "members", str(index)), lambda m=member: gaussian.from_entry(m, {}), member)
@@ -187,7 +222,7 @@ def build_packet(resolved: Mapping, system=None):
         packet = _in(("packet", "members"), lambda: PacketList(members))
     else:
         packet = _in(("packet",), lambda: gaussian.from_entry(spec, {}), spec)
-    if system is not None:
+    if system is not None and kind not in ("plane-wave", "ground-state"):  # built on the grid already
         grid = getattr(system, "grid", system)
         if kind == "list":
             for index, member in enumerate(packet.packets):
@@ -196,6 +231,86 @@ def build_packet(resolved: Mapping, system=None):
         else:
             _in(("packet",), lambda: packet.validate(grid), spec)
     return packet
+
+
+def _plane_wave(resolved: Mapping):
+    """``exp(i k (x - start)) / sqrt(length)`` on the study's grid; ``k`` a multiple of 2 pi / length."""
+    from ..errors import InvalidParameterError as Invalid
+    from ..specs.packets import Wavefunction
+
+    system, wavenumber = resolved["system"], float(resolved["packet"].get("wavenumber", 0.0))
+    points, length = int(system["points"]), float(system["length"])
+    mode = wavenumber * length / (2.0 * math.pi)
+    if abs(mode - round(mode)) > 1e-9 * max(1.0, abs(mode)) or abs(round(mode)) >= points // 2:
+        raise Invalid(
+            f"plane-wave wavenumber {wavenumber:g} is not a mode of the periodic box: use a multiple of "
+            f"2 pi / length = {2 * math.pi / length:.6g} below pi points / length in size "
+            f"(e.g. wavenumber = {round(mode) * 2 * math.pi / length:.6g})"
+        )
+    x = np.arange(points) * (length / points)
+    return Wavefunction(np.exp(2j * math.pi * round(mode) * x / length) / math.sqrt(length))
+
+
+# Ground states by the canonical form of their inputs (grid, model, trap, nonlinearity, tolerance):
+# each is computed once per process, and shared by every point and task that asks for the same one.
+_GROUND_STATES: collections.OrderedDict = collections.OrderedDict()
+GROUND_STATE_CACHE = 64
+"""Most ground states :func:`ground_state_of` keeps (least recently used dropped first)."""
+
+
+def ground_state_inputs(resolved: Mapping) -> dict:
+    """What the ground state of a ``kind = "ground-state"`` packet depends on: the grid and model
+    (no quasimomentum: the trap's box is untwisted), the trap, the nonlinearity and the tolerance."""
+    system, packet = resolved["system"], resolved["packet"]
+    from .schema import MODEL_KEYS
+
+    model = system.get("model", "continuum")
+    return {
+        "grid": [system["points"], system["length"], system.get("center", 0.0)],
+        "model": {"kind": model, **{k: system[k] for k in MODEL_KEYS[model] if k in system}},
+        "trap": packet["trap"],
+        "nonlinearity": packet.get("nonlinearity", system.get("nonlinearity", 0.0)),
+        "tolerance": packet.get("tolerance", 1e-10),
+    }
+
+
+def ground_state_of(resolved: Mapping):
+    """The :class:`~mottle.GroundState` a ``kind = "ground-state"`` packet names: ``mottle.ground_state``
+    of the study's grid and model with the ``[[packet.trap]]`` potentials (summed) and the
+    nonlinearity (``packet.nonlinearity``, by default the system's), cached by
+    :func:`ground_state_inputs`; its warnings are given again on each use."""
+    from ..dynamics.ground import ground_state
+    from ..errors import MottleError
+    from ..specs.grid import Grid
+    from ..specs.kinds import kinds
+    from ..specs.system import System
+
+    inputs = ground_state_inputs(resolved)
+    token = json.dumps(inputs, sort_keys=True)
+    if token not in _GROUND_STATES:
+        points, length, center = inputs["grid"]
+        grid = _in(("system",), lambda: Grid(points, length, center))
+        model_class = kinds("model")[inputs["model"]["kind"]]
+        model = _in(("system",), lambda: model_class.from_entry(inputs["model"], {}))
+        trap = _entries(inputs["trap"], ("packet", "trap"), "potential", {}, grid)
+        where = ("packet",)
+        trap_system = _in(
+            where, lambda: System(grid, model, potential=trap, nonlinearity=inputs["nonlinearity"])
+        )
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                state = ground_state(trap_system, inputs["tolerance"])
+            except MottleError as error:
+                raise _KeyedError(where, f"its ground state: {error}") from None
+        _GROUND_STATES[token] = (state, [(item.category, str(item.message)) for item in caught])
+        while len(_GROUND_STATES) > GROUND_STATE_CACHE:
+            _GROUND_STATES.popitem(last=False)
+    _GROUND_STATES.move_to_end(token)
+    state, shown = _GROUND_STATES[token]
+    for category, message in shown:
+        warnings.warn(message, category, stacklevel=2)
+    return state
 
 
 def run_arguments(resolved: Mapping, seed: int) -> dict:
@@ -227,6 +342,7 @@ def detector_of(resolved: Mapping) -> tuple[float, float] | None:
 
 def _check_run(resolved: Mapping, system) -> None:
     from .. import _checks
+    from ..dynamics.drive import drive_steps
     from ..dynamics.propagate import (
         default_detector,
         detector_bounds,
@@ -240,6 +356,7 @@ def _check_run(resolved: Mapping, system) -> None:
     step = _in(("run", "step"), lambda: _checks.positive("step", run["step"]))
     steps, used = steps_for(duration, step)
     _in(("run", "snapshots"), lambda: pauses_for(run.get("snapshots", []), used, steps))
+    _in(("run", "step"), lambda: drive_steps(system, used, steps))
     detector = default_detector(system, detector_of(resolved))
     _in(("run", "detector"), lambda: detector_bounds(system, detector))
     _in(("run", "order"), lambda: resolve_splitting(run.get("order", 2), run.get("splitting")))
@@ -539,12 +656,15 @@ def _parse(text: str, source: str) -> dict:
 
 def _load_tables(document: dict, root: Path, problems: _Problems) -> dict[str, np.ndarray]:
     """Replace each tabulated potential's values (a list, or a .npy file, no pickles) by their SHA-256."""
+    from .schema import POTENTIAL_KINDS, nested_entries
+
     tables = {}
-    for index, entry in enumerate(document.get("system", {}).get("potential", [])):
+    entries = document.get("system", {}).get("potential", [])
+    for path, entry, _ in nested_entries(entries, ("system", "potential"), POTENTIAL_KINDS):
         if entry.get("kind") != "tabulated" or "values" not in entry:
             continue
         values = entry["values"]
-        where = ("system", "potential", str(index), "values")
+        where = (*path, "values")
         if isinstance(values, str):
             path = (root / values).resolve()
             try:
@@ -613,13 +733,19 @@ and at the factors' extreme values taken together; a combination left out is che
 point runs, and a failure there names the point."""
 
 _GRID = ("system.points", "system.length", "system.center")
+# What a ground-state packet reads beyond the grid: the model and the nonlinearity.
+_TRAP = ("system.model", "system.hbar", "system.mass", "system.hopping", "system.nonlinearity")
 _REGION = re.compile(r"^system\.disorder\.\d+\.(start|stop)$")
 
 # Each part: which swept keys it reads, and its check (of the resolved point, with the system's cache).
+# The run reads the potentials too: kicks and switches must land on its steps.
 _PARTS = (
     ("system", lambda key: key.startswith("system.")),
-    ("packet", lambda key: key.startswith("packet.") or key in _GRID),
-    ("run", lambda key: key.startswith("run.") or key in _GRID or bool(_REGION.match(key))),
+    ("packet", lambda key: key.startswith("packet.") or key in _GRID or key in _TRAP),
+    (
+        "run",
+        lambda key: key.startswith(("run.", "system.potential.")) or key in _GRID or bool(_REGION.match(key)),
+    ),
 )
 
 

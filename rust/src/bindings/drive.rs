@@ -6,7 +6,7 @@ use pyo3::prelude::*;
 use super::packets::DrawRequest;
 use super::request::{request, tagged};
 use crate::dispersion::Dispersion;
-use crate::drive::{Drive, Envelope, Kick, Profile, Term};
+use crate::drive::{Drive, Envelope, Kick, Modulation, Profile, Term};
 use crate::error::CoreError;
 
 /// A 1-D real array, copied (another Python thread could write it while we run detached).
@@ -52,6 +52,16 @@ request! {
         profile: ProfileRequest,
         first: usize,
         every: usize,
+        modulation: Option<ModulationRequest>,
+    }
+}
+
+request! {
+    /// A kick's strength `1 + depth cos(frequency t_n + phase)` at its time `t_n`.
+    pub(crate) struct ModulationRequest("kick modulation") {
+        depth: f64,
+        frequency: f64,
+        phase: DrawRequest,
     }
 }
 
@@ -83,6 +93,11 @@ impl DriveRequest {
                     profile: kick.profile.profile(),
                     first: kick.first,
                     every: kick.every,
+                    modulation: kick.modulation.map(|m| Modulation {
+                        depth: m.depth,
+                        frequency: m.frequency,
+                        phase: m.phase.draw(),
+                    }),
                 })
                 .collect(),
             terms: self
