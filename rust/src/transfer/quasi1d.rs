@@ -49,8 +49,8 @@ const CANCEL_POLL_SLICES: usize = 1024;
 /// The block of one thread may take at most this many bytes (two `channels^2` matrices).
 const MAX_BLOCK_BYTES: usize = 1 << 30;
 /// The vectors may grow by at most `e^MAX_LOG_GROWTH` between two
-/// re-orthonormalizations (far from overflow at `e^709`).
-const MAX_LOG_GROWTH: f64 = 600.0;
+/// re-orthonormalizations: their squared norms stay far from overflow at `e^709`.
+const MAX_LOG_GROWTH: f64 = 300.0;
 
 /// A strip or bar of the Anderson model with box disorder at one energy.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -181,15 +181,22 @@ pub fn bar_disorder(bar: &Bar, index: u64) -> Result<Vec<f64>, CoreError> {
     Ok(values)
 }
 
+/// The multiple the row stride is padded to (the padding columns stay zero):
+/// a whole number of chunks of the Gram-Schmidt sweep of every width used.
+const CHUNK: usize = 32;
+
 /// One thread's buffers.
 struct Workspace {
-    /// `(psi[n], psi[n-1])` or `(psi[n-1], psi[n])` (see `current_first`): `2 channels x channels`.
+    /// The stacked `(psi[n]; psi[n-1])`, or `(psi[n-1]; psi[n])` when
+    /// `current_first` is false: `2 channels` rows of `stride` columns, the
+    /// first `channels` of them used.
     block: Vec<f64>,
+    stride: usize,
     current_first: bool,
-    /// The on-site energies of the drawn slices, and how many of them are used.
+    /// The on-site energies of the drawn slices, and the next one to use.
     drawn: Vec<f64>,
     next_slice: usize,
-    /// Gram-Schmidt coefficients: this column's and the next one's.
+    /// Gram-Schmidt coefficients: this column's and the next one's (`stride` each).
     coefficients: Vec<f64>,
     next_coefficients: Vec<f64>,
     neighbours: Vec<[usize; 4]>,
@@ -198,15 +205,28 @@ struct Workspace {
 impl Workspace {
     fn new(bar: &Bar) -> Self {
         let channels = bar.channels();
+        let stride = channels.div_ceil(CHUNK) * CHUNK;
         Workspace {
-            block: vec![0.0; 2 * channels * channels],
+            block: vec![0.0; 2 * channels * stride],
+            stride,
             current_first: true,
             drawn: vec![0.0; DRAW_SLICES * channels],
             next_slice: DRAW_SLICES,
-            coefficients: vec![0.0; channels],
-            next_coefficients: vec![0.0; channels],
+            coefficients: vec![0.0; stride],
+            next_coefficients: vec![0.0; stride],
             neighbours: bar.neighbours(),
         }
+    }
+
+    fn orthonormalize(&mut self, channels: usize, logs: &mut [f64]) -> Result<(), CoreError> {
+        gram_schmidt(
+            &mut self.block,
+            self.stride,
+            channels,
+            &mut self.coefficients,
+            &mut self.next_coefficients,
+            logs,
+        )
     }
 }
 
@@ -216,13 +236,19 @@ impl Workspace {
 /// clean bar's symmetric modes do), which rounding then fills only after
 /// `ln(1/eps)/gamma` slices; a generic `psi[-1]` has no such trap.
 fn start_block(channels: usize, work: &mut Workspace) -> Result<(), CoreError> {
-    let (top, bottom) = work.block.split_at_mut(channels * channels);
+    let stride = work.stride;
+    work.block.fill(0.0);
+    let (top, bottom) = work.block.split_at_mut(channels * stride);
     for (i, (row, below)) in top
-        .chunks_exact_mut(channels)
-        .zip(bottom.chunks_exact_mut(channels))
+        .chunks_exact_mut(stride)
+        .zip(bottom.chunks_exact_mut(stride))
         .enumerate()
     {
-        for (j, (v, w)) in row.iter_mut().zip(below.iter_mut()).enumerate() {
+        for (j, (v, w)) in row[..channels]
+            .iter_mut()
+            .zip(below[..channels].iter_mut())
+            .enumerate()
+        {
             let (i, j) = (i as f64, j as f64);
             *v = if i == j { 1.0 } else { 0.0 };
             *w = 0.5 * (1.0 + 0.7 * i + 1.3 * j + 0.37 * i * j).cos();
@@ -230,18 +256,7 @@ fn start_block(channels: usize, work: &mut Workspace) -> Result<(), CoreError> {
     }
     work.current_first = true;
     // The start's own R is not part of any exponent.
-    let mut discarded = std::mem::take(&mut work.next_coefficients);
-    let mut logs = vec![0.0; channels];
-    let result = gram_schmidt(
-        top,
-        bottom,
-        channels,
-        &mut work.coefficients,
-        &mut discarded,
-        &mut logs,
-    );
-    work.next_coefficients = discarded;
-    result
+    work.orthonormalize(channels, &mut vec![0.0; channels])
 }
 
 /// `ln R_ii` summed over each block of slices and divided by its slices, for
@@ -254,6 +269,7 @@ fn realization_exponents(
     cancel: &AtomicBool,
 ) -> Result<Vec<f64>, CoreError> {
     let channels = bar.channels();
+    let stride = work.stride;
     let mut stream = Stream::new(bar.seed, 0, index);
     start_block(channels, work)?;
     work.next_slice = DRAW_SLICES;
@@ -283,7 +299,7 @@ fn realization_exponents(
                     work.next_slice = 0;
                 }
                 let eps = &work.drawn[work.next_slice * channels..(work.next_slice + 1) * channels];
-                let (top, bottom) = work.block.split_at_mut(channels * channels);
+                let (top, bottom) = work.block.split_at_mut(channels * stride);
                 let (current, previous) = if work.current_first {
                     (&*top, bottom)
                 } else {
@@ -295,6 +311,7 @@ fn realization_exponents(
                     bar.energy,
                     inverse,
                     &work.neighbours,
+                    stride,
                     current,
                     previous,
                 );
@@ -302,20 +319,10 @@ fn realization_exponents(
                 work.next_slice += 1;
                 slice += 1;
             }
-            let (top, bottom) = work.block.split_at_mut(channels * channels);
-            let (current, previous) = if work.current_first {
-                (top, bottom)
-            } else {
-                (bottom, top)
-            };
-            gram_schmidt(
-                current,
-                previous,
-                channels,
-                &mut work.coefficients,
-                &mut work.next_coefficients,
-                logs,
-            )?;
+            // The QR runs over the rows as stored, (psi[n]; psi[n-1]) or
+            // (psi[n-1]; psi[n]): a row permutation changes neither R nor the
+            // subspace, and the two halves stay where they are.
+            work.orthonormalize(channels, logs)?;
         }
         let length = (slice - start_slice) as f64;
         logs.iter_mut().for_each(|log| *log /= length);
@@ -323,64 +330,72 @@ fn realization_exponents(
     Ok(out)
 }
 
-/// `previous <- ((eps - E)/J) current - A current - previous`, row by row.
+/// `previous <- ((eps - E)/J) current - A current - previous`, row by row
+/// over the first `eps.len()` columns of rows `stride` apart.
+#[allow(clippy::too_many_arguments)]
 fn slice_step(
     dimensions: usize,
     eps: &[f64],
     energy: f64,
     inverse: f64,
     neighbours: &[[usize; 4]],
+    stride: usize,
     current: &[f64],
     previous: &mut [f64],
 ) {
     #[cfg(target_arch = "x86_64")]
-    if has_avx2() {
-        // SAFETY: AVX2 is present (checked above).
+    if simd() != Simd::None {
+        // SAFETY: AVX2 is present (checked by `simd`; AVX-512F implies it).
         unsafe {
             return slice_step_avx2(
-                dimensions, eps, energy, inverse, neighbours, current, previous,
+                dimensions, eps, energy, inverse, neighbours, stride, current, previous,
             );
         }
     }
     slice_step_portable(
-        dimensions, eps, energy, inverse, neighbours, current, previous,
+        dimensions, eps, energy, inverse, neighbours, stride, current, previous,
     );
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
+#[allow(clippy::too_many_arguments)]
 unsafe fn slice_step_avx2(
     dimensions: usize,
     eps: &[f64],
     energy: f64,
     inverse: f64,
     neighbours: &[[usize; 4]],
+    stride: usize,
     current: &[f64],
     previous: &mut [f64],
 ) {
     slice_step_portable(
-        dimensions, eps, energy, inverse, neighbours, current, previous,
+        dimensions, eps, energy, inverse, neighbours, stride, current, previous,
     );
 }
 
 #[inline(always)]
+#[allow(clippy::too_many_arguments)]
 fn slice_step_portable(
     dimensions: usize,
     eps: &[f64],
     energy: f64,
     inverse: f64,
     neighbours: &[[usize; 4]],
+    stride: usize,
     current: &[f64],
     previous: &mut [f64],
 ) {
     let n = eps.len();
-    let row = |j: usize| &current[j * n..(j + 1) * n];
+    let row = |j: usize| &current[j * stride..j * stride + n];
     for (j, (out, (&v, near))) in previous
-        .chunks_exact_mut(n)
+        .chunks_exact_mut(stride)
         .zip(eps.iter().zip(neighbours))
         .enumerate()
     {
         let c = (v - energy) * inverse;
+        let out = &mut out[..n];
         let (here, a, b) = (row(j), row(near[0]), row(near[1]));
         if dimensions == 2 {
             for (o, ((&h, &a), &b)) in out.iter_mut().zip(here.iter().zip(a).zip(b)) {
@@ -397,58 +412,87 @@ fn slice_step_portable(
     }
 }
 
-/// Modified Gram-Schmidt on the stacked `(top; bottom)` rows, in place: the
-/// columns become orthonormal and `logs[k] += ln R_kk`. Each column's update
-/// of the later columns and the next column's dot products are fused into one
-/// sweep over the rows (`2 m n^2` flops for `m = 2n` rows, and Q comes out
-/// directly, where Householder needs about twice that to form Q).
+/// Modified Gram-Schmidt on the first `n` columns of the rows of `block`
+/// (`stride` apart, a multiple of `CHUNK`, the columns beyond `n` zero), in
+/// place: the columns become orthonormal and `logs[k] += ln R_kk`.
+///
+/// Column `k`'s update of the later columns and the next column's dot
+/// products are fused into one sweep over the rows (`2 m n^2` flops for
+/// `m = 2n` rows, and Q comes out directly, where Householder needs about
+/// twice that to form Q). The sweep runs over whole chunks of `CHUNK`
+/// columns, aligned, so that every inner loop has a fixed length and each
+/// chunk's dot products stay in registers; in the first chunk the columns
+/// up to `k` get a zero coefficient (`v - x * 0 = v`), which changes none of
+/// their bits but a zero's sign.
 fn gram_schmidt(
-    top: &mut [f64],
-    bottom: &mut [f64],
+    block: &mut [f64],
+    stride: usize,
     n: usize,
     coefficients: &mut [f64],
     next: &mut [f64],
     logs: &mut [f64],
 ) -> Result<(), CoreError> {
     #[cfg(target_arch = "x86_64")]
-    if has_avx2() {
-        // SAFETY: AVX2 is present (checked above).
-        unsafe {
-            return gram_schmidt_avx2(top, bottom, n, coefficients, next, logs);
+    match simd() {
+        Simd::Avx512 => {
+            // SAFETY: AVX-512F is present (checked by `simd`).
+            return unsafe { gram_schmidt_avx512(block, stride, n, coefficients, next, logs) };
         }
+        Simd::Avx2 => {
+            // SAFETY: AVX2 is present (checked by `simd`).
+            return unsafe { gram_schmidt_avx2(block, stride, n, coefficients, next, logs) };
+        }
+        Simd::None => {}
     }
-    gram_schmidt_portable(top, bottom, n, coefficients, next, logs)
+    gram_schmidt_portable::<8>(block, stride, n, coefficients, next, logs)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 unsafe fn gram_schmidt_avx2(
-    top: &mut [f64],
-    bottom: &mut [f64],
+    block: &mut [f64],
+    stride: usize,
     n: usize,
     coefficients: &mut [f64],
     next: &mut [f64],
     logs: &mut [f64],
 ) -> Result<(), CoreError> {
-    gram_schmidt_portable(top, bottom, n, coefficients, next, logs)
+    gram_schmidt_portable::<16>(block, stride, n, coefficients, next, logs)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn gram_schmidt_avx512(
+    block: &mut [f64],
+    stride: usize,
+    n: usize,
+    coefficients: &mut [f64],
+    next: &mut [f64],
+    logs: &mut [f64],
+) -> Result<(), CoreError> {
+    gram_schmidt_portable::<32>(block, stride, n, coefficients, next, logs)
 }
 
 #[inline(always)]
-fn gram_schmidt_portable(
-    top: &mut [f64],
-    bottom: &mut [f64],
+fn gram_schmidt_portable<const W: usize>(
+    block: &mut [f64],
+    stride: usize,
     n: usize,
     coefficients: &mut [f64],
     next: &mut [f64],
     logs: &mut [f64],
 ) -> Result<(), CoreError> {
     // Dot products of column 0 with every column.
-    coefficients.fill(0.0);
-    for row in top.chunks_exact(n).chain(bottom.chunks_exact(n)) {
-        let x = row[0];
-        for (r, &v) in coefficients.iter_mut().zip(row) {
-            *r += x * v;
+    for c0 in (0..stride).step_by(W) {
+        let mut sums = [0.0; W];
+        for row in block.chunks_exact(stride) {
+            let x = row[0];
+            let part: &[f64; W] = row[c0..c0 + W].try_into().unwrap_or(&[0.0; W]);
+            for (s, &v) in sums.iter_mut().zip(part) {
+                *s += x * v;
+            }
         }
+        coefficients[c0..c0 + W].copy_from_slice(&sums);
     }
     for k in 0..n {
         let square = coefficients[k];
@@ -461,34 +505,78 @@ fn gram_schmidt_portable(
         logs[k] += 0.5 * square.ln();
         let scale = 1.0 / square.sqrt();
         let inverse_square = 1.0 / square;
+        let first = (k + 1) / W * W;
+        if first <= k {
+            coefficients[first..=k].fill(0.0);
+        }
         coefficients[k + 1..]
             .iter_mut()
             .for_each(|r| *r *= inverse_square);
-        next[k + 1..].fill(0.0);
-        let (later, later_next) = (&coefficients[k + 1..], &mut next[k + 1..]);
-        for row in top.chunks_exact_mut(n).chain(bottom.chunks_exact_mut(n)) {
-            let x = row[k];
-            row[k] = x * scale;
-            let rest = &mut row[k + 1..];
-            for (v, &r) in rest.iter_mut().zip(later) {
-                *v -= x * r;
-            }
-            if let Some(&y) = rest.first() {
-                for (s, &v) in later_next.iter_mut().zip(rest.iter()) {
-                    *s += y * v;
-                }
+        if k + 1 < n {
+            for c0 in (first..stride).step_by(W) {
+                sweep::<W>(block, stride, k, c0, coefficients, next);
             }
         }
-        coefficients[k + 1..].swap_with_slice(&mut next[k + 1..]);
+        for row in block.chunks_exact_mut(stride) {
+            row[k] *= scale;
+        }
+        coefficients[k + 1..].copy_from_slice(&next[k + 1..]);
     }
     Ok(())
 }
 
+/// Columns `c0 .. c0 + W` minus `row[k] * coefficients`, and their dot
+/// products with the updated column `k + 1` into `next`.
+#[inline(always)]
+fn sweep<const W: usize>(
+    block: &mut [f64],
+    stride: usize,
+    k: usize,
+    c0: usize,
+    coefficients: &[f64],
+    next: &mut [f64],
+) {
+    let coefficient: [f64; W] = coefficients[c0..c0 + W].try_into().unwrap_or([0.0; W]);
+    let mut sums = [0.0; W];
+    for row in block.chunks_exact_mut(stride) {
+        let x = row[k];
+        let Ok(part) = <&mut [f64; W]>::try_from(&mut row[c0..c0 + W]) else {
+            continue;
+        };
+        for (v, &r) in part.iter_mut().zip(&coefficient) {
+            *v -= x * r;
+        }
+        let y = row[k + 1];
+        let part: &[f64; W] = row[c0..c0 + W].try_into().unwrap_or(&[0.0; W]);
+        for (s, &v) in sums.iter_mut().zip(part) {
+            *s += y * v;
+        }
+    }
+    next[c0..c0 + W].copy_from_slice(&sums);
+}
+
 #[cfg(target_arch = "x86_64")]
-fn has_avx2() -> bool {
+#[derive(Clone, Copy, PartialEq)]
+enum Simd {
+    Avx512,
+    Avx2,
+    None,
+}
+
+/// The widest vector instructions present (the same operations on any of them).
+#[cfg(target_arch = "x86_64")]
+fn simd() -> Simd {
     use std::sync::OnceLock;
-    static DETECTED: OnceLock<bool> = OnceLock::new();
-    *DETECTED.get_or_init(|| is_x86_feature_detected!("avx2"))
+    static DETECTED: OnceLock<Simd> = OnceLock::new();
+    *DETECTED.get_or_init(|| {
+        if is_x86_feature_detected!("avx512f") {
+            Simd::Avx512
+        } else if is_x86_feature_detected!("avx2") {
+            Simd::Avx2
+        } else {
+            Simd::None
+        }
+    })
 }
 
 /// The per-block exponents (per site) of realizations `first .. first + count`:
@@ -630,46 +718,69 @@ mod tests {
 
     #[test]
     fn gram_schmidt_orthonormalizes_and_keeps_the_volume() {
-        // A fixed pseudo-random 8 x 4 block: Q^T Q = 1 and prod R_kk = sqrt(det(X^T X)).
-        let n = 4;
-        let mut seed = 99u64;
-        let mut values: Vec<f64> = (0..2 * n * n)
-            .map(|_| {
-                seed = seed
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-            })
-            .collect();
-        let original = values.clone();
-        let gram = |x: &[f64], a: usize, b: usize| -> f64 {
-            (0..2 * n).map(|i| x[i * n + a] * x[i * n + b]).sum()
-        };
-        // det of the 4 x 4 Gram matrix by Gaussian elimination.
-        let mut g: Vec<Vec<f64>> = (0..n)
-            .map(|a| (0..n).map(|b| gram(&original, a, b)).collect())
-            .collect();
-        let mut det = 1.0;
-        for k in 0..n {
-            det *= g[k][k];
-            for i in k + 1..n {
-                let f = g[i][k] / g[k][k];
-                for j in k..n {
-                    g[i][j] -= f * g[k][j];
+        // Fixed pseudo-random 2n x n blocks (n = 4, 20, 37: one chunk, a full one
+        // plus a partial one, several): Q^T Q = 1 and sum ln R_kk = ln sqrt(det(X^T X)).
+        for n in [4usize, 20, 37] {
+            let stride = n.div_ceil(CHUNK) * CHUNK;
+            let mut seed = 99u64;
+            let mut values = vec![0.0; 2 * n * stride];
+            for row in values.chunks_exact_mut(stride) {
+                for v in &mut row[..n] {
+                    seed = seed
+                        .wrapping_mul(6364136223846793005)
+                        .wrapping_add(1442695040888963407);
+                    *v = (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
                 }
             }
-        }
-        let (mut c, mut d, mut logs) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-        let (top, bottom) = values.split_at_mut(n * n);
-        gram_schmidt(top, bottom, n, &mut c, &mut d, &mut logs).unwrap();
-        for a in 0..n {
-            for b in 0..n {
-                let expected = if a == b { 1.0 } else { 0.0 };
-                assert!((gram(&values, a, b) - expected).abs() < 1e-14);
+            let original = values.clone();
+            let gram = |x: &[f64], a: usize, b: usize| -> f64 {
+                (0..2 * n)
+                    .map(|i| x[i * stride + a] * x[i * stride + b])
+                    .sum()
+            };
+            // ln det of the Gram matrix by Gaussian elimination.
+            let mut g: Vec<Vec<f64>> = (0..n)
+                .map(|a| (0..n).map(|b| gram(&original, a, b)).collect())
+                .collect();
+            let mut log_det = 0.0;
+            for k in 0..n {
+                log_det += g[k][k].ln();
+                let pivot = g[k].clone();
+                for row in &mut g[k + 1..] {
+                    let f = row[k] / pivot[k];
+                    for (v, p) in row[k..].iter_mut().zip(&pivot[k..]) {
+                        *v -= f * p;
+                    }
+                }
             }
+            let (mut c, mut d, mut logs) = (vec![0.0; stride], vec![0.0; stride], vec![0.0; n]);
+            gram_schmidt(&mut values, stride, n, &mut c, &mut d, &mut logs).unwrap();
+            for a in 0..n {
+                for b in 0..n {
+                    let expected = if a == b { 1.0 } else { 0.0 };
+                    assert!((gram(&values, a, b) - expected).abs() < 1e-13, "n = {n}");
+                }
+            }
+            assert!(values
+                .chunks_exact(stride)
+                .all(|row| row[n..].iter().all(|&v| v == 0.0)));
+            let volume: f64 = logs.iter().sum();
+            assert!((volume - 0.5 * log_det).abs() < 1e-11, "n = {n}: {volume}");
+            // Every instruction set gives the same bits.
+            let mut portable = original.clone();
+            let mut portable_logs = vec![0.0; n];
+            gram_schmidt_portable::<8>(
+                &mut portable,
+                stride,
+                n,
+                &mut c,
+                &mut d,
+                &mut portable_logs,
+            )
+            .unwrap();
+            assert_eq!(portable, values);
+            assert_eq!(portable_logs, logs);
         }
-        let volume: f64 = logs.iter().sum();
-        assert!((volume - 0.5 * det.ln()).abs() < 1e-13, "{volume}");
     }
 
     #[test]
@@ -729,5 +840,47 @@ mod tests {
             bar_exponents(&good, 0, 2, &cancelled),
             Err(CoreError::Interrupted)
         );
+    }
+}
+
+#[cfg(test)]
+mod timing {
+    use super::*;
+
+    #[test]
+    #[ignore]
+    fn time_gram_schmidt() {
+        let n = 64;
+        let mut seed = 5u64;
+        let start: Vec<f64> = (0..2 * n * n)
+            .map(|_| {
+                seed = seed
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+            })
+            .collect();
+        let (mut c, mut d, mut logs) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+        for variant in 0..3 {
+            let mut best = f64::INFINITY;
+            for _ in 0..40 {
+                let mut block = start.clone();
+                let t = std::time::Instant::now();
+                for _ in 0..20 {
+                    match variant {
+                        0 => gram_schmidt(&mut block, n, n, &mut c, &mut d, &mut logs).unwrap(),
+                        1 => unsafe {
+                            gram_schmidt_avx2(&mut block, n, n, &mut c, &mut d, &mut logs).unwrap()
+                        },
+                        _ => {
+                            gram_schmidt_portable::<8>(&mut block, n, n, &mut c, &mut d, &mut logs)
+                                .unwrap()
+                        }
+                    }
+                }
+                best = best.min(t.elapsed().as_secs_f64() / 20.0);
+            }
+            eprintln!("variant {variant}: {:.1} us", best * 1e6);
+        }
     }
 }
