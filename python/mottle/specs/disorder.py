@@ -50,6 +50,7 @@ class Disorder(Kinded):
         raise NotImplementedError
 
     def validate(self, grid: Grid) -> None:
+        _checks.one_dimensional(f"disorder ({type(self).__name__})", grid)
         if self.start < grid.start or self.stop > grid.stop:
             raise InvalidParameterError(
                 f"{type(self).__name__} region [{self.start}, {self.stop}) must lie inside the box "

@@ -37,6 +37,7 @@ from ..specs.system import System
 def _check_linear(system) -> None:
     if not isinstance(system, System):
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
+    _checks.one_dimensional("the transfer-matrix method (lyapunov, transmission_spectrum)", system.grid)
     if system.nonlinearity != 0.0:
         raise InvalidParameterError(
             f"transfer matrices solve the linear stationary equation, but the system has nonlinearity="
