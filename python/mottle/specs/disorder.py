@@ -182,6 +182,21 @@ class BoxDisorder(Disorder):
         dx = _need_dx("BoxDisorder power_spectrum", dx)
         return np.full_like(np.asarray(q, dtype=float), self.variance() * dx)
 
+    def validate(self, grid: Grid) -> None:
+        if grid.ndim == 1:
+            super().validate(grid)
+            return
+        # On a 2D/3D grid, start/stop make a slab along axis 0 across the whole box
+        # (what the quasi-1D transfer matrices of mottle.lyapunov(..., width=M) read).
+        axis = grid.axes[0]
+        if self.start < grid.start[0] or self.stop > grid.stop[0]:
+            raise InvalidParameterError(
+                f"BoxDisorder slab [{self.start}, {self.stop}) along x must lie inside the box "
+                f"[{grid.start[0]}, {grid.stop[0]}) along x"
+            )
+        if not np.any((axis >= self.start) & (axis < self.stop)):
+            raise InvalidParameterError(f"BoxDisorder slab [{self.start}, {self.stop}) holds no grid point")
+
 
 @dataclass(frozen=True)
 class GaussianDisorder(Disorder):

@@ -9,7 +9,7 @@ import numpy as np
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
-from .disorder import Disorder
+from .disorder import BoxDisorder, Disorder
 from .grid import Grid
 from .models import Continuum, Lattice
 from .potentials import Potential, _terms
@@ -64,7 +64,8 @@ class System:
                     f"disorder must be a mottle disorder model (WhiteNoise, BoxDisorder, GaussianDisorder, "
                     f"Speckle or a sum), got {type(self.disorder).__name__}"
                 )
-            _checks.one_dimensional(f"disorder ({type(self.disorder).__name__})", self.grid)
+            if not isinstance(self.disorder, BoxDisorder):  # box disorder: a slab on 2D/3D grids
+                _checks.one_dimensional(f"disorder ({type(self.disorder).__name__})", self.grid)
             self.disorder.validate(self.grid)
             self.disorder.validate_model(self.model)
         if self.absorber is not None:

@@ -182,8 +182,9 @@ pub fn bar_disorder(bar: &Bar, index: u64) -> Result<Vec<f64>, CoreError> {
 }
 
 /// The multiple the row stride is padded to (the padding columns stay zero):
-/// a whole number of chunks of the Gram-Schmidt sweep of every width used.
-const CHUNK: usize = 32;
+/// a whole number of chunks of the Gram-Schmidt sweep (16 columns, or 32
+/// where the stride allows and AVX-512 is present).
+const CHUNK: usize = 16;
 
 /// One thread's buffers.
 struct Workspace {
@@ -470,7 +471,11 @@ unsafe fn gram_schmidt_avx512(
     next: &mut [f64],
     logs: &mut [f64],
 ) -> Result<(), CoreError> {
-    gram_schmidt_portable::<32>(block, stride, n, coefficients, next, logs)
+    if stride % 32 == 0 {
+        gram_schmidt_portable::<32>(block, stride, n, coefficients, next, logs)
+    } else {
+        gram_schmidt_portable::<16>(block, stride, n, coefficients, next, logs)
+    }
 }
 
 #[inline(always)]
