@@ -189,10 +189,11 @@ class BoxDisorder(Disorder):
         # On a 2D/3D grid, start/stop make a slab along axis 0 across the whole box
         # (what the quasi-1D transfer matrices of mottle.lyapunov(..., width=M) read).
         axis = grid.axes[0]
-        if self.start < grid.start[0] or self.stop > grid.stop[0]:
+        low, high = np.ravel(grid.start)[0], np.ravel(grid.stop)[0]
+        if self.start < low or self.stop > high:
             raise InvalidParameterError(
                 f"BoxDisorder slab [{self.start}, {self.stop}) along x must lie inside the box "
-                f"[{grid.start[0]}, {grid.stop[0]}) along x"
+                f"[{low}, {high}) along x"
             )
         if not np.any((axis >= self.start) & (axis < self.stop)):
             raise InvalidParameterError(f"BoxDisorder slab [{self.start}, {self.stop}) holds no grid point")

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
 
@@ -123,7 +124,7 @@ class Quasi1DLyapunov:
         return _reciprocal(self.exponent, 1.0)
 
     @property
-    def Lambda(self) -> Stat:  # noqa: N802 (the scaling variable's usual name)
+    def Lambda(self) -> Stat:
         """``Lambda = xi_M / (M * transverse spacing)``."""
         return _reciprocal(self.exponent, self.width * self.transverse_spacing)
 
@@ -131,9 +132,14 @@ class Quasi1DLyapunov:
         shape = f"{self.width}" if self.dimensions == 2 else f"{self.width}x{self.width}"
         return (
             f"{self.dimensions}D, {shape} across, {self.slices} slices x {self.realizations} "
-            f"realizations at E = {self.energy:g}: Lambda = {self.Lambda.mean:.5g} ± {self.Lambda.stderr:.2g}, "
-            f"xi = {self.xi.mean:.5g} ± {self.xi.stderr:.2g}"
+            f"realizations at E = {self.energy:g}: Lambda = {self.Lambda.mean:.5g} ± "
+            f"{self.Lambda.stderr:.2g}, xi = {self.xi.mean:.5g} ± {self.xi.stderr:.2g}"
         )
+
+
+def _spacings(grid) -> tuple[float, ...]:
+    """The grid spacing along each axis (a tuple on a 2D/3D grid)."""
+    return tuple(float(dx) for dx in np.ravel(grid.dx))
 
 
 def _transverse(system: System, width) -> tuple[int, int, float]:
@@ -157,11 +163,12 @@ def _transverse(system: System, width) -> tuple[int, int, float]:
                 f"width {width} does not fit the transverse box: the grid has {points} points along "
                 f"{_AXES[axis]} (axis {axis}); use width <= {points} or more points along {_AXES[axis]}"
             )
-    spacing = grid.dx[1]
-    if grid.ndim == 3 and not math.isclose(grid.dx[2], spacing, rel_tol=1e-12):
+    dx = _spacings(grid)
+    spacing = dx[1]
+    if grid.ndim == 3 and not math.isclose(dx[2], spacing, rel_tol=1e-12):
         raise InvalidParameterError(
             f"a bar of width x width sites needs one transverse spacing, but dx along y is {spacing:g} "
-            f"and along z {grid.dx[2]:g}: make length / points equal on axes 1 and 2"
+            f"and along z {dx[2]:g}: make length / points equal on axes 1 and 2"
         )
     return grid.ndim, width, spacing
 
@@ -199,7 +206,8 @@ def _slices(system: System, region) -> tuple[int, float]:
     slices = int(np.count_nonzero(inside))
     if slices == 0:
         raise InvalidParameterError(
-            f"region [{start}, {stop}) holds no grid point along x of the box [{grid.start[0]}, {grid.stop[0]})"
+            f"region [{start}, {stop}) holds no grid point along x of the box "
+            f"[{np.ravel(grid.start)[0]}, {np.ravel(grid.stop)[0]})"
         )
     if disorder is None:
         return slices, 0.0
@@ -223,7 +231,7 @@ def bar_request(
     """The checked core request for ``system`` as a strip or bar of ``width`` sites across."""
     dimensions, width, _ = _transverse(system, width)
     slices, disorder_width = _slices(system, region)
-    hopping = float(system.model.hopping)
+    hopping = float(cast("Lattice", system.model).hopping)  # a Lattice: checked by _transverse
     if qr_interval is None:
         qr_interval = default_qr_interval(dimensions, disorder_width, energy, hopping)
     qr_interval = _checks.integer("qr_interval", qr_interval, minimum=1)
@@ -264,11 +272,11 @@ def bar_lyapunov(
             f"{need / 2**30:.1f} GiB of results, more than half this machine's {have / 2**30:.1f} GiB; "
             "use fewer realizations or blocks"
         )
-    grid = system.grid
+    dx = _spacings(system.grid)
     config = _requests.realizations(seed, realizations, threads)
     results = []
     for energy, request in zip(energies, requests, strict=True):
-        spectra = _core.bar_exponents_of(request, config) / grid.dx[0]
+        spectra = _core.bar_exponents_of(request, config) / dx[0]
         results.append(
             Quasi1DLyapunov(
                 energy=float(energy),
@@ -276,8 +284,8 @@ def bar_lyapunov(
                 width=request["width"],
                 slices=request["slices"],
                 qr_interval=request["qr_interval"],
-                spacing=float(grid.dx[0]),
-                transverse_spacing=float(grid.dx[1]),
+                spacing=dx[0],
+                transverse_spacing=dx[1],
                 seed=seed,
                 spectra=spectra,
             )
@@ -325,9 +333,10 @@ def reference_exponents(
             for eps in potential[slice_ : min(slice_ + qr_interval, slices)]:
                 c = ((eps.reshape(n) - energy) / hopping)[:, None]
                 shaped = current.reshape((*transverse, n))
-                neighbours = sum(
-                    np.roll(shaped, shift, axis=axis) for axis in range(len(transverse)) for shift in (1, -1)
-                ).reshape(n, n)
+                neighbours = np.zeros_like(shaped)
+                for axis in range(len(transverse)):
+                    neighbours += np.roll(shaped, 1, axis=axis) + np.roll(shaped, -1, axis=axis)
+                neighbours = neighbours.reshape(n, n)
                 current, previous = c * current - neighbours - previous, current
                 slice_ += 1
             q, r = np.linalg.qr(np.vstack([current, previous]))
