@@ -5,6 +5,11 @@ threads, bad input."""
 from __future__ import annotations
 
 import math
+import signal
+import subprocess
+import sys
+import textwrap
+import time
 
 import numpy as np
 import pytest
@@ -169,3 +174,43 @@ def test_bad_input_is_refused():
     clean = mo.System(bar.grid, model=mo.Lattice())
     with pytest.raises(mo.InvalidParameterError, match="needs a region"):
         mo.lyapunov(clean, 0.0, 1, width=4)
+
+
+INTERRUPTED = textwrap.dedent(
+    """
+    import signal
+    import mottle as mo
+
+    signal.signal(signal.SIGINT, signal.default_int_handler)
+    grid = mo.Grid(points=(100_000, 16, 16), length=(1e5, 16.0, 16.0))
+    system = mo.System(grid, model=mo.Lattice(), disorder=mo.BoxDisorder(16.5, grid.start[0], grid.stop[0]))
+    print("ready", flush=True)
+    try:
+        mo.lyapunov(system, 0.0, 200, width=8, threads=2)  # about a minute
+    except KeyboardInterrupt:
+        print("interrupted", flush=True)
+        raise
+    print("finished", flush=True)
+    """
+)
+
+
+def test_ctrl_c_stops_a_long_bar_within_a_second():
+    process = subprocess.Popen(
+        [sys.executable, "-c", INTERRUPTED], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+    )
+    try:
+        assert process.stdout is not None and process.stdout.readline().strip() == "ready"
+        time.sleep(0.5)
+        assert process.poll() is None
+        sent = time.monotonic()
+        process.send_signal(signal.SIGINT)
+        out, err = process.communicate(timeout=10.0)
+        elapsed = time.monotonic() - sent
+    finally:
+        if process.poll() is None:
+            process.kill()
+            process.communicate()
+    assert "interrupted" in out, err
+    assert "KeyboardInterrupt" in err
+    assert elapsed < 1.5, f"took {elapsed:.2f} s to stop"
