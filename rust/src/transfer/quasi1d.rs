@@ -471,7 +471,7 @@ unsafe fn gram_schmidt_avx512(
     next: &mut [f64],
     logs: &mut [f64],
 ) -> Result<(), CoreError> {
-    if stride % 32 == 0 {
+    if stride.is_multiple_of(32) {
         gram_schmidt_portable::<32>(block, stride, n, coefficients, next, logs)
     } else {
         gram_schmidt_portable::<16>(block, stride, n, coefficients, next, logs)
