@@ -51,6 +51,7 @@ from .stationary.localization import (
     lyapunov,
     transmission_spectrum,
 )
+from .stationary.quasi1d import Quasi1DLyapunov
 from .studies.runner import StudyInterrupted, run_study
 from .studies.store import Store, StoreError, convert_store, open_store
 from .studies.study import Study, StudyError, StudyPoint, load_study
@@ -115,6 +116,7 @@ __all__ += [
     "Lyapunov",
     "MomentumPeaks",
     "QuantumClassical",
+    "Quasi1DLyapunov",
     "StandardMap",
     "TailFit",
     "TransmissionSpectrum",

@@ -94,3 +94,19 @@ def default_threads() -> int:
 def threads(value: object) -> int:
     """A ``threads=`` argument: None for every core this process may use, else an integer >= 1."""
     return default_threads() if value is None else integer("threads", value, minimum=1)
+
+
+# What already works on 2D and 3D grids; the one message below names them, so a refusal says where to go.
+ND_SUPPORTED: tuple[str, ...] = ("mottle.Grid",)
+
+
+def one_dimensional(what: str, grid: Any) -> None:
+    """Refuse a 2D or 3D grid (or its shape, a tuple) in a part of mottle that is 1D only so far,
+    with the one shared message."""
+    shape = grid if isinstance(grid, tuple) else getattr(grid, "shape", None)
+    ndim = 1 if shape is None else len(shape)
+    if ndim != 1:
+        raise InvalidParameterError(
+            f"{what} is 1D only for now; 2D/3D grids are supported by {', '.join(ND_SUPPORTED)} "
+            f"(this grid has {ndim} axes, shape {shape})"
+        )

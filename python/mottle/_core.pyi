@@ -18,6 +18,8 @@ __all__ = [
     "InvalidTypeError",
     "MottleError",
     "__version__",
+    "bar_disorder_of",
+    "bar_exponents_of",
     "classical_particles",
     "draw_packet",
     "ensemble_chunks",
@@ -178,6 +180,16 @@ class _Realizations(TypedDict):
     count: int
     threads: int
 
+class _Bar(TypedDict):
+    dimensions: int
+    width: int
+    slices: int
+    hopping: float
+    disorder_width: float
+    energy: float
+    qr_interval: int
+    blocks: int
+
 class _Particles(TypedDict):
     center: float
     position_spread: float
@@ -288,6 +300,8 @@ def log_transmissions_of(
     energies: list[float],
     realizations: _Realizations,
 ) -> npt.NDArray[np.float64]: ...
+def bar_exponents_of(bar: _Bar, realizations: _Realizations) -> npt.NDArray[np.float64]: ...
+def bar_disorder_of(bar: _Bar, seed: int, index: int) -> npt.NDArray[np.float64]: ...
 def classical_particles(
     line: _Line, model: _Model, config: _Particles, potential: npt.NDArray[np.float64]
 ) -> dict[str, Any]: ...

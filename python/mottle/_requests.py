@@ -20,6 +20,7 @@ if TYPE_CHECKING:
     from collections.abc import Iterable, Sequence
 
     from ._core import (
+        _Bar,
         _ClassicalStart,
         _Draw,
         _Drive,
@@ -194,6 +195,29 @@ def packets(grid: Grid | None, packet: object) -> _Packets:
 def realizations(seed: int, count: int, threads: int, start: int = 0) -> _Realizations:
     """Which realizations, on how many threads."""
     return {"seed": int(seed), "start": int(start), "count": int(count), "threads": int(threads)}
+
+
+def bar(
+    dimensions: int,
+    width: int,
+    slices: int,
+    hopping: float,
+    disorder_width: float,
+    energy: float,
+    qr_interval: int,
+    blocks: int,
+) -> _Bar:
+    """A strip (2D) or bar (3D) of the Anderson model for the quasi-1D transfer matrices."""
+    return {
+        "dimensions": int(dimensions),
+        "width": int(width),
+        "slices": int(slices),
+        "hopping": float(hopping),
+        "disorder_width": float(disorder_width),
+        "energy": float(energy),
+        "qr_interval": int(qr_interval),
+        "blocks": int(blocks),
+    }
 
 
 def particles(

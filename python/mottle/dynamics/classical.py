@@ -117,6 +117,7 @@ def classical_ensemble(
     """
 
     check_system(system)
+    _checks.one_dimensional("classical_ensemble", system.grid)
     from .drive import is_driven
 
     if is_driven(system):

@@ -304,6 +304,8 @@ def plan(
     spectrum=None,
 ) -> _Plan:
     """Validate an ensemble's arguments before anything large is allocated."""
+    if isinstance(system, System):
+        _checks.one_dimensional("ensemble", system.grid)
     if not isinstance(packet, (GaussianPacket, Wavefunction, RandomPacket, PacketList)):
         raise InvalidTypeError(
             "packet must be a GaussianPacket, Wavefunction, RandomPacket or PacketList, "

@@ -146,6 +146,7 @@ def ground_state(
     """
     if not isinstance(system, System):
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
+    _checks.one_dimensional("ground_state", system.grid)
     if system.absorber is not None:
         raise InvalidParameterError(
             "ground_state needs a closed system: this one has absorbers, which remove probability; "

@@ -243,6 +243,7 @@ def run_arguments(
     from ..errors import StepChangedWarning
 
     check_system(system)
+    _checks.one_dimensional("a run (propagate, ensemble, classical_ensemble, studies)", system.grid)
     duration = _checks.positive("duration", duration)
     step = _checks.positive("step", step)
     splitting = resolve_splitting(order, splitting)
@@ -413,6 +414,7 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
     ``index``'s, the :class:`RunArguments` and the potential realized.
     """
     check_system(system)
+    _checks.one_dimensional("propagate", system.grid)
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)
     if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):

@@ -50,6 +50,7 @@ class Disorder(Kinded):
         raise NotImplementedError
 
     def validate(self, grid: Grid) -> None:
+        _checks.one_dimensional(f"disorder ({type(self).__name__})", grid)
         if self.start < grid.start or self.stop > grid.stop:
             raise InvalidParameterError(
                 f"{type(self).__name__} region [{self.start}, {self.stop}) must lie inside the box "
@@ -180,6 +181,22 @@ class BoxDisorder(Disorder):
         # (common practice; docs/validation.md, pitfall 3).
         dx = _need_dx("BoxDisorder power_spectrum", dx)
         return np.full_like(np.asarray(q, dtype=float), self.variance() * dx)
+
+    def validate(self, grid: Grid) -> None:
+        if grid.ndim == 1:
+            super().validate(grid)
+            return
+        # On a 2D/3D grid, start/stop make a slab along axis 0 across the whole box
+        # (what the quasi-1D transfer matrices of mottle.lyapunov(..., width=M) read).
+        axis = grid.axes[0]
+        low, high = np.ravel(grid.start)[0], np.ravel(grid.stop)[0]
+        if self.start < low or self.stop > high:
+            raise InvalidParameterError(
+                f"BoxDisorder slab [{self.start}, {self.stop}) along x must lie inside the box "
+                f"[{low}, {high}) along x"
+            )
+        if not np.any((axis >= self.start) & (axis < self.stop)):
+            raise InvalidParameterError(f"BoxDisorder slab [{self.start}, {self.stop}) holds no grid point")
 
 
 @dataclass(frozen=True)

@@ -49,6 +49,7 @@ class GaussianPacket(Kinded):
         return hbar_sq_over_2m * (self.wavenumber**2 + self.wavenumber_spread**2)
 
     def validate(self, grid: Grid) -> None:
+        _checks.one_dimensional("GaussianPacket", grid)
         if not grid.contains(self.center):
             raise InvalidParameterError(
                 f"packet center {self.center} lies outside the box [{grid.start}, {grid.stop})"
@@ -98,6 +99,7 @@ class Wavefunction:
         object.__setattr__(self, "table", table)
 
     def validate(self, grid: Grid) -> None:
+        _checks.one_dimensional("Wavefunction", grid)
         if self.table.shape != (grid.points,):
             raise InvalidParameterError(
                 f"wavefunction has shape {self.table.shape}; the grid needs ({grid.points},)"

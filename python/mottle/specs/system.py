@@ -9,10 +9,10 @@ import numpy as np
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
-from .disorder import Disorder
+from .disorder import BoxDisorder, Disorder
 from .grid import Grid
 from .models import Continuum, Lattice
-from .potentials import Potential
+from .potentials import Potential, _terms
 
 
 @dataclass(frozen=True, eq=False)
@@ -49,6 +49,9 @@ class System:
                 f"model must be mottle.Continuum or mottle.Lattice, got {type(self.model).__name__}"
             )
         if self.potential is not None:
+            if isinstance(self.potential, Potential):
+                for term in _terms(self.potential):
+                    _checks.one_dimensional(f"the {type(term).__name__} potential", self.grid)
             if not isinstance(self.potential, Potential):
                 raise InvalidTypeError(
                     f"potential must be a mottle potential (Barrier, Harmonic, Tabulated or a sum), "
@@ -61,6 +64,8 @@ class System:
                     f"disorder must be a mottle disorder model (WhiteNoise, BoxDisorder, GaussianDisorder, "
                     f"Speckle or a sum), got {type(self.disorder).__name__}"
                 )
+            if not isinstance(self.disorder, BoxDisorder):  # box disorder: a slab on 2D/3D grids
+                _checks.one_dimensional(f"disorder ({type(self.disorder).__name__})", self.grid)
             self.disorder.validate(self.grid)
             self.disorder.validate_model(self.model)
         if self.absorber is not None:
@@ -68,6 +73,7 @@ class System:
                 raise InvalidTypeError(
                     f"absorber must be a mottle.Absorber, got {type(self.absorber).__name__}"
                 )
+            _checks.one_dimensional("Absorber", self.grid)
             if self.absorber.width >= 0.5 * self.grid.length:
                 raise InvalidParameterError(
                     f"absorber width {self.absorber.width} leaves no room inside the box of length "

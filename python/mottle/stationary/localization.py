@@ -32,11 +32,13 @@ from ..analysis.statistics import Stat, stderr
 from ..errors import InvalidParameterError, InvalidTypeError
 from ..specs.grid import _memory_bytes
 from ..specs.system import System
+from . import quasi1d
 
 
 def _check_linear(system) -> None:
     if not isinstance(system, System):
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
+    _checks.one_dimensional("the transfer-matrix method (lyapunov, transmission_spectrum)", system.grid)
     if system.nonlinearity != 0.0:
         raise InvalidParameterError(
             f"transfer matrices solve the linear stationary equation, but the system has nonlinearity="
@@ -180,8 +182,30 @@ def lyapunov(
     seed: int = 0,
     threads: int | None = None,
     region=None,
+    width: int | None = None,
+    qr_interval: int | None = None,
+    blocks: int | None = None,
 ):
     """The Lyapunov exponent ``gamma(E)`` over the disorder region, per unit length.
+
+    **Strips and bars** (``width=M``): on a 2D grid ``(L, N)`` or 3D grid
+    ``(L, N, N)`` with ``model=mottle.Lattice(J)`` and one
+    :class:`~mottle.BoxDisorder` (a slab along x; the Anderson model), the
+    smallest positive Lyapunov exponent of the strip of ``M`` sites (2D) or
+    bar of ``M x M`` sites (3D) across, periodic across, whose slices are the
+    grid points along x in ``region`` (by default the disorder's slab), by the
+    transfer matrices of MacKinnon & Kramer (Z. Phys. B 53, 1 (1983); see
+    :mod:`mottle.stationary.quasi1d` for the conventions). ``M`` must fit the
+    transverse box (``M <= N`` along y and z, an error names the axis; a grid
+    has at least 16 points per axis, so a narrower bar is cut from the box and
+    wraps at ``M``). ``qr_interval`` is the number of slices between two
+    re-orthonormalizations (default from the growth per slice, see
+    :func:`~mottle.stationary.quasi1d.default_qr_interval`; fewer is more
+    accurate and slower); each realization is reported in ``blocks`` blocks of
+    slices (default: enough for 16 estimates in all), which give error bars
+    even from one realization. Returns a :class:`Quasi1DLyapunov` (``.exponent``,
+    ``.xi``, ``.Lambda`` as :class:`Stat`), or a list for a sequence of
+    energies; bitwise the same for any ``threads``.
 
     Transfer matrices through the total potential (deterministic part plus
     disorder realization ``r`` of ``seed``, exactly what
@@ -194,6 +218,26 @@ def lyapunov(
     Realizations run in parallel on ``threads`` (default: all cores); results
     do not depend on ``threads``. The GIL is released and Ctrl-C stops the run.
     """
+    if width is not None or qr_interval is not None or blocks is not None:
+        if width is None:
+            raise InvalidParameterError(
+                "qr_interval and blocks belong to the quasi-1D transfer matrices: pass width=M too"
+            )
+        if not isinstance(system, System):
+            raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
+        if system.nonlinearity != 0.0:
+            raise InvalidParameterError(
+                "transfer matrices solve the linear stationary equation, but the system has "
+                f"nonlinearity={system.nonlinearity}"
+            )
+        energies, scalar = _energies(energy)
+        realizations = _checks.integer("realizations", realizations, minimum=1)
+        seed = _checks.integer("seed", seed, minimum=0)
+        threads = _checks.threads(threads)
+        bars = quasi1d.bar_lyapunov(
+            system, energies, realizations, seed, threads, region, width, qr_interval, blocks
+        )
+        return bars[0] if scalar else bars
     _check_linear(system)
     energies, scalar = _energies(energy)
     realizations = _checks.integer("realizations", realizations, minimum=1)

@@ -23,6 +23,7 @@ mod ground;
 mod localization;
 mod packets;
 mod propagate;
+mod quasi1d;
 mod request;
 mod spectrum;
 
@@ -117,6 +118,7 @@ fn core_module(module: &Bound<'_, PyModule>) -> PyResult<()> {
     packets::register(module)?;
     ensemble::register(module)?;
     localization::register(module)?;
+    quasi1d::register(module)?;
     classical::register(module)?;
     ground::register(module)?;
     module.add("__version__", env!("CARGO_PKG_VERSION"))?;

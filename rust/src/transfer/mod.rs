@@ -30,6 +30,7 @@ use crate::error::{invalid, CoreError};
 
 mod continuum;
 mod lattice;
+pub mod quasi1d;
 
 /// How many cells run between two looks at the cancel flag.
 const CANCEL_POLL_CELLS: usize = 1 << 16;
