@@ -145,25 +145,9 @@ def test_drawn_modulation_phases_of_kicks_are_per_realization():
     )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", mo.UnderResolvedWarning)
-        one = mo.ensemble(
-            system,
-            zero_momentum(128),
-            duration=10.0,
-            step=1.0,
-            snapshots=[10.0],
-            realizations=6,
-            seed=3,
-            threads=1,
-        )
-        two = mo.ensemble(
-            system,
-            zero_momentum(128),
-            duration=10.0,
-            step=1.0,
-            snapshots=[10.0],
-            realizations=6,
-            seed=3,
-            threads=2,
+        one, two = (
+            mo.ensemble(system, zero_momentum(128), 10.0, 1.0, 6, snapshots=[10.0], seed=3, threads=threads)
+            for threads in (1, 2)
         )
     p2 = one.samples["momentum_squared"][:, -1]
     assert np.array_equal(p2, two.samples["momentum_squared"][:, -1])

@@ -62,11 +62,7 @@ pub struct Modulation {
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Envelope {
     /// `1 + depth cos(frequency t + phase)`.
-    Modulated {
-        depth: f64,
-        frequency: f64,
-        phase: Draw,
-    },
+    Modulated(Modulation),
     /// 1 during the main run's steps `on .. off` (`off = None`: never off), else 0.
     Switched { on: usize, off: Option<usize> },
 }
@@ -248,16 +244,7 @@ impl Drive {
         for term in &self.terms {
             term.profile.validate(points)?;
             match term.envelope {
-                Envelope::Modulated {
-                    depth,
-                    frequency,
-                    phase,
-                } => Modulation {
-                    depth,
-                    frequency,
-                    phase,
-                }
-                .validate()?,
+                Envelope::Modulated(modulation) => modulation.validate()?,
                 Envelope::Switched { on, off } => {
                     if off.is_some_and(|off| off < on) {
                         return invalid(format!(
@@ -318,16 +305,7 @@ impl Drive {
             .map(|term| {
                 let values = term.profile.realize(points, dx, start, &mut stream);
                 let strength = match term.envelope {
-                    Envelope::Modulated {
-                        depth,
-                        frequency,
-                        phase,
-                    } => Modulation {
-                        depth,
-                        frequency,
-                        phase,
-                    }
-                    .realize(&mut stream),
+                    Envelope::Modulated(modulation) => modulation.realize(&mut stream),
                     Envelope::Switched { on, off } => Strength::Switched { on, off },
                 };
                 (values, strength)

@@ -724,9 +724,12 @@ mod drive_tests {
             .collect()
     }
 
-    #[test]
-    fn a_kick_every_two_steps_is_the_map_applied_by_hand() {
-        // Kicks at steps 0, 2, 4 of five: kick, two free steps, ... (free steps are exact).
+    /// Five steps of dt = 0.1 with kicks of `profile` at steps 0, 2, 4 (times 0, 0.2, 0.4) and the
+    /// given strength, against the map applied by hand (free steps are exact): the largest gap.
+    fn kicks_against_by_hand(
+        strength: Option<Strength>,
+        by_hand_strength: impl Fn(f64) -> f64,
+    ) -> f64 {
         let setup = free_setup(64, 0.1);
         let shared = Shared::<f64>::new(setup.clone()).unwrap();
         let never = AtomicBool::new(false);
@@ -739,73 +742,46 @@ mod drive_tests {
                     values: profile.clone(),
                     first: 0,
                     every: 2,
-                    strength: None,
+                    strength,
                 }],
                 ..Realized::default()
             })
             .unwrap();
         let mut psi = packet(&setup);
+        // Two calls: a kick falls on the second call's first step, as after a pause.
         kicked.advance(&mut psi, 3, &never).unwrap();
         kicked.advance(&mut psi, 2, &never).unwrap();
         let mut free = Stepper::new(&shared);
         free.prepare(&[0.0; 64]).unwrap();
         let mut by_hand = packet(&setup);
-        for steps in [2, 2, 1] {
-            for (z, &v) in by_hand.iter_mut().zip(&profile) {
-                *z *= Complex64::from_polar(1.0, -v);
-            }
-            free.advance(&mut by_hand, steps, &never).unwrap();
-        }
-        let gap = psi
-            .iter()
-            .zip(&by_hand)
-            .map(|(a, b)| (a - b).norm())
-            .fold(0.0, f64::max);
-        assert!(gap < 1e-12, "{gap}");
-    }
-
-    #[test]
-    fn a_modulated_kick_scales_each_kick_by_its_strength_then() {
-        // Kicks at steps 0, 2, 4 (times 0, 0.2, 0.4) of strength 1 + 0.6 cos(3 t + 0.5).
-        let setup = free_setup(64, 0.1);
-        let shared = Shared::<f64>::new(setup.clone()).unwrap();
-        let never = AtomicBool::new(false);
-        let profile: Vec<f64> = (0..64).map(|j| (j as f64 * 0.3).sin()).collect();
-        let strength = Strength::Modulated {
-            depth: 0.6,
-            frequency: 3.0,
-            phase: 0.5,
-        };
-        let mut kicked = Stepper::new(&shared);
-        kicked.prepare(&[0.0; 64]).unwrap();
-        kicked
-            .set_drive(&Realized {
-                kicks: vec![RealizedKick {
-                    values: profile.clone(),
-                    first: 0,
-                    every: 2,
-                    strength: Some(strength),
-                }],
-                ..Realized::default()
-            })
-            .unwrap();
-        let mut psi = packet(&setup);
-        kicked.advance(&mut psi, 5, &never).unwrap();
-        let mut free = Stepper::new(&shared);
-        free.prepare(&[0.0; 64]).unwrap();
-        let mut by_hand = packet(&setup);
         for (kick, steps) in [(0, 2), (2, 2), (4, 1)] {
-            let e = 1.0 + 0.6 * (3.0 * kick as f64 * 0.1 + 0.5).cos();
+            let e = by_hand_strength(kick as f64 * 0.1);
             for (z, &v) in by_hand.iter_mut().zip(&profile) {
                 *z *= Complex64::from_polar(1.0, -e * v);
             }
             free.advance(&mut by_hand, steps, &never).unwrap();
         }
-        let gap = psi
-            .iter()
+        psi.iter()
             .zip(&by_hand)
             .map(|(a, b)| (a - b).norm())
-            .fold(0.0, f64::max);
+            .fold(0.0, f64::max)
+    }
+
+    #[test]
+    fn a_kick_every_two_steps_is_the_map_applied_by_hand() {
+        let gap = kicks_against_by_hand(None, |_| 1.0);
+        assert!(gap < 1e-12, "{gap}");
+    }
+
+    #[test]
+    fn a_modulated_kick_scales_each_kick_by_its_strength_then() {
+        // Strength 1 + 0.6 cos(3 t + 0.5) at each kick's time.
+        let strength = Strength::Modulated {
+            depth: 0.6,
+            frequency: 3.0,
+            phase: 0.5,
+        };
+        let gap = kicks_against_by_hand(Some(strength), |t| 1.0 + 0.6 * (3.0 * t + 0.5).cos());
         assert!(gap < 1e-13, "{gap}");
     }
 

@@ -111,11 +111,11 @@ impl DriveRequest {
                         phase,
                     } => Term {
                         profile: profile.profile(),
-                        envelope: Envelope::Modulated {
+                        envelope: Envelope::Modulated(Modulation {
                             depth,
                             frequency,
                             phase: phase.draw(),
-                        },
+                        }),
                     },
                     TimeTermRequest::Switched { profile, on, off } => Term {
                         profile: profile.profile(),
