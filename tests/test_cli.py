@@ -97,6 +97,9 @@ def assert_same_numbers(first, second):
 def workspace(tmp_path_factory):
     root = tmp_path_factory.mktemp("cli")
     (root / "study.toml").write_text(STUDY)
+    # Five times the work per point, for the tests that interrupt a run: a point then takes long
+    # enough (about a second) that the interruption comes before the last point on a fast machine too.
+    (root / "slow.toml").write_text(STUDY.replace("realizations = 96", "realizations = 480"))
     return root
 
 
@@ -108,6 +111,15 @@ def in_process(workspace):
     )
     assert result.returncode == 0, result.stderr
     return workspace / "in-process.mottle", result
+
+
+@pytest.fixture(scope="module")
+def slow_in_process(workspace):
+    """The reference for the interrupted runs: the slow study uninterrupted, in process."""
+    store = workspace / "slow-in-process.mottle"
+    result = mottle("run", workspace / "slow.toml", "--store", store, "--threads", 2)
+    assert result.returncode == 0, result.stderr
+    return store
 
 
 def test_in_process_run_prints_one_line_per_point_and_fills_the_store(in_process):
@@ -166,18 +178,18 @@ def test_a_cluster_that_loses_a_worker_gives_the_same_numbers(workspace, in_proc
     assert hosts and all(hosts)
 
 
-def test_a_killed_driver_resumes_to_the_same_numbers(workspace, in_process):
+def test_a_killed_driver_resumes_to_the_same_numbers(workspace, slow_in_process):
     store = workspace / "resumed.mottle"
-    # One thread (the numbers do not depend on it): the points take long enough that the first
-    # commit comes before the last point, on a fast machine too.
-    run = start("run", workspace / "study.toml", "--store", store, "--threads", 1)
+    # One thread (the numbers do not depend on it), the slow study: the first commit comes well
+    # before the last point.
+    run = start("run", workspace / "slow.toml", "--store", store, "--threads", 1)
     printed = point_lines("".join(read_until_point(run)))
     # Frozen with its lock held, so that it cannot finish before the second writer tries (points
     # that finish together are committed together, so the run may be close to its end here).
     run.send_signal(signal.SIGSTOP)
     try:
         # A second writer on the same store is refused while the first one holds it.
-        second = mottle("run", workspace / "study.toml", "--store", store)
+        second = mottle("run", workspace / "slow.toml", "--store", store)
     finally:
         run.send_signal(signal.SIGKILL)
         run.wait()
@@ -187,18 +199,18 @@ def test_a_killed_driver_resumes_to_the_same_numbers(workspace, in_process):
     finished = {p.index for p in saved.points}
     assert {int(line.split()[1].split("/")[0]) - 1 for line in printed} <= finished
     assert 1 <= len(finished) < 6, "the driver finished before it was killed"
-    resumed = mottle("run", workspace / "study.toml", "--store", store)
+    resumed = mottle("run", workspace / "slow.toml", "--store", store)
     assert resumed.returncode == 0, resumed.stderr
     # Only the missing points ran.
     assert len(point_lines(resumed.stdout)) == 6 - len(finished)
-    assert_same_numbers(in_process[0], store)
+    assert_same_numbers(slow_in_process, store)
 
 
-def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, in_process):
+def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, slow_in_process):
     store = workspace / "interrupted.mottle"
     run = start(
         "run",
-        workspace / "study.toml",
+        workspace / "slow.toml",
         "--store",
         store,
         "--workers",
@@ -216,9 +228,9 @@ def test_ctrl_c_keeps_the_finished_points_and_says_how_to_resume(workspace, in_p
     assert len(message) == 1
     done = len(mo.open_store(store).points)
     assert f"interrupted: {done} of 6 points are saved in {store}; resume with: mottle run " in message[0]
-    resumed = mottle("run", workspace / "study.toml", "--store", store)
+    resumed = mottle("run", workspace / "slow.toml", "--store", store)
     assert resumed.returncode == 0
-    assert_same_numbers(in_process[0], store)
+    assert_same_numbers(slow_in_process, store)
 
 
 def test_report_draws_the_stored_numbers(workspace, in_process):
