@@ -67,6 +67,9 @@ class _Setup(TypedDict):
     points: int
     dx: float
     start: float
+    shape: list[int]
+    spacing: list[float]
+    origin: list[float]
     model: _Model
     nonlinearity: float
     step: float

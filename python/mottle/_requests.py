@@ -65,13 +65,23 @@ def disorder_terms(disorder: Disorder | None) -> list[_Term]:
 
 
 def setup(system: System, step: float, splitting: str) -> _Setup:
-    """The grid, model, step and absorbing layers of a run."""
+    """The grid, model, step and absorbing layers of a run.
+
+    On a 2D/3D grid ``points`` is the number of all points, ``dx`` the volume element and ``start``
+    the first position along axis 0; ``shape``, ``spacing`` and ``origin`` give each axis (C order,
+    axis 0 slowest), and the layer bounds are flat indices (whole slabs of axis 0).
+    """
     left_end, right_start = system.layer_bounds()
     grid = system.grid
+    spacing = [float(d) for d in np.atleast_1d(grid.dx)]
+    origin = [float(s) for s in np.atleast_1d(grid.start)]
     return {
-        "points": int(grid.points),
-        "dx": float(grid.dx),
-        "start": float(grid.start),
+        "points": int(grid.size),
+        "dx": float(np.prod(spacing)),
+        "start": origin[0],
+        "shape": [int(n) for n in grid.shape],
+        "spacing": spacing,
+        "origin": origin,
         "model": model(system.model),
         "nonlinearity": float(system.nonlinearity),
         "step": float(step),
@@ -185,9 +195,9 @@ def packets(grid: Grid | None, packet: object) -> _Packets:
     if grid is None:
         raise ValueError("fixed and listed packets need the grid")
     if isinstance(packet, (GaussianPacket, Wavefunction)):
-        return {"kind": "fixed", "values": packet.values(grid).astype(np.complex128)}
+        return {"kind": "fixed", "values": packet.values(grid).astype(np.complex128).ravel()}
     if isinstance(packet, PacketList):
-        values = np.stack([p.values(grid) for p in packet.packets]).astype(np.complex128)
+        values = np.stack([p.values(grid).ravel() for p in packet.packets]).astype(np.complex128)
         return {"kind": "list", "values": values}
     raise TypeError(f"no core request for a packet of type {type(packet).__name__}")
 

@@ -85,6 +85,21 @@ impl Dispersion {
             .collect()
     }
 
+    /// `E(k) = sum_a E_a(k_a)` on a 2D/3D grid (C order), each axis's term at
+    /// its FFT wavenumbers: the square/cubic lattice's band is `d` times wider.
+    /// One axis gives `kinetic_table` itself.
+    pub fn kinetic_table_nd(&self, shape: &[usize], spacing: &[f64]) -> Vec<f64> {
+        let mut table = vec![0.0];
+        for (&points, &dx) in shape.iter().zip(spacing) {
+            let axis = self.kinetic_table(points, dx);
+            table = table
+                .iter()
+                .flat_map(|&outer| axis.iter().map(move |&inner| outer + inner))
+                .collect();
+        }
+        table
+    }
+
     /// The kinetic energies `(lowest, highest)` of the band (`highest` infinite in the continuum).
     pub fn band(&self) -> (f64, f64) {
         match *self {

@@ -15,7 +15,7 @@ use rayon::prelude::*;
 use crate::disorder::{Line, Plan, Realizer, Term};
 use crate::drive::Drive;
 use crate::error::{invalid, CoreError};
-use crate::observables::{observe, wavenumbers, Detector};
+use crate::observables::{axis_wavenumbers, momentum_scale, observe, Detector};
 use crate::packets::PacketSource;
 use crate::propagate::{validate_pauses, Offsets, Pause};
 use crate::real::{density, narrow, Real};
@@ -54,12 +54,14 @@ pub struct Chunk {
     pub norm: Vec<f64>,
     pub absorbed_left: Vec<f64>,
     pub absorbed_right: Vec<f64>,
+    /// By the layers on the faces across axis 0 (2D/3D boxes absorbing on every face).
+    pub absorbed_sides: Vec<f64>,
     /// The quasimomentum `beta` of each realization (0 without a twist).
     pub quasimomentum: Vec<f64>,
-    /// `count x snapshots`, realization-major.
+    /// `count x snapshots x axes`, realization-major.
     pub position: Vec<f64>,
     pub position_squared: Vec<f64>,
-    /// `<p>` and `<p^2>`, `count x snapshots`, realization-major.
+    /// `<p>` and `<p^2>`, `count x snapshots x axes`, realization-major.
     pub mean_momentum: Vec<f64>,
     pub momentum_squared: Vec<f64>,
     /// Inverse participation ratio `sum |psi|^4 dx / (sum |psi|^2 dx)^2`.
@@ -110,6 +112,17 @@ pub fn run_chunks<T: Real>(
         ));
     }
     validate_pauses(&spec.pauses, spec.steps, setup.step)?;
+    if setup.shape.len() > 1 {
+        let drawn = matches!(spec.packets, crate::packets::PacketSource::Gaussian { .. });
+        if drawn || spec.spectrum.is_some() || spec.drive.twist.is_some() || !spec.disorder.is_empty()
+        {
+            return invalid(format!(
+                "on a {}D grid an ensemble takes fixed or listed packets, no spectrum, no \
+                 twisted boundary and (for now) no disorder",
+                setup.shape.len()
+            ));
+        }
+    }
     spec.packets.validate(setup.points)?;
     spec.drive.validate(setup.points)?;
     if let Some(detector) = spec.detector {
@@ -180,8 +193,9 @@ fn run_chunk<T: Real>(
     let mut psi = vec![Complex::new(T::zero(), T::zero()); n];
     let mut buffer = psi.clone();
     let mut copy = psi.clone();
-    let k = wavenumbers(n, grid.dx);
-    let momentum_scale = grid.dx * grid.dx / (2.0 * std::f64::consts::PI);
+    let k = axis_wavenumbers(&shared.setup);
+    let scale = momentum_scale(&shared.setup);
+    let axes = shared.setup.shape.len();
     let mut record: Vec<Complex64> = Vec::with_capacity(if spec.spectrum.is_some() {
         2 * (spec.steps + 1)
     } else {
@@ -232,10 +246,14 @@ fn run_chunk<T: Real>(
                 spec.detector,
                 cancel,
             )?;
-            chunk.position.push(observation.position);
-            chunk.position_squared.push(observation.position_squared);
-            chunk.mean_momentum.push(observation.momentum);
-            chunk.momentum_squared.push(observation.momentum_squared);
+            chunk.position.extend(&observation.position[..axes]);
+            chunk
+                .position_squared
+                .extend(&observation.position_squared[..axes]);
+            chunk.mean_momentum.extend(&observation.momentum[..axes]);
+            chunk
+                .momentum_squared
+                .extend(&observation.momentum_squared[..axes]);
             let row = s * n..(s + 1) * n;
             for ((((&z, d), d2), l), l2) in copy
                 .iter()
@@ -253,7 +271,7 @@ fn run_chunk<T: Real>(
             }
             chunk.participation.push(observation.participation);
             for (&z, m) in buffer.iter().zip(&mut chunk.momentum[row]) {
-                *m += density(z) * momentum_scale;
+                *m += density(z) * scale;
             }
         }
         let probed = probe.as_ref().map(|points| (&points[..], &mut record));
@@ -281,6 +299,7 @@ fn run_chunk<T: Real>(
         chunk.norm.push(last.norm);
         chunk.absorbed_left.push(last.absorbed.left);
         chunk.absorbed_right.push(last.absorbed.right);
+        chunk.absorbed_sides.push(last.absorbed.sides);
     }
     Ok(chunk)
 }

@@ -12,6 +12,7 @@ pub mod error;
 pub mod ground;
 pub mod kernels;
 pub mod localization;
+pub mod ndfft;
 pub mod observables;
 pub mod packets;
 pub mod propagate;

@@ -14,7 +14,9 @@ use crate::classical::{Landscape, Particle};
 use crate::dispersion::Dispersion;
 use crate::drive::Realized;
 use crate::error::{invalid, CoreError};
-use crate::observables::{momentum_density, observe, wavenumbers, Detector, Observation};
+use crate::observables::{
+    axis_wavenumbers, momentum_density, momentum_scale, observe, Detector, Observation,
+};
 use crate::real::{narrow, Real};
 use crate::stepper::{Setup, Shared, Stepper};
 
@@ -124,7 +126,7 @@ impl<T: Real> Offsets<T> {
         pause: Pause,
         copy: &mut [Complex<T>],
         buffer: &mut [Complex<T>],
-        k: &[f64],
+        k: &[Vec<f64>],
         detector: Option<Detector>,
         cancel: &AtomicBool,
     ) -> Result<Observation, CoreError> {
@@ -179,7 +181,7 @@ pub fn propagate<T: Real>(
     let mut psi: Vec<Complex<T>> = request.psi.iter().map(|&z| narrow(z)).collect();
     let mut buffer = psi.clone();
     let mut copy = psi.clone();
-    let k = wavenumbers(n, setup.dx);
+    let k = axis_wavenumbers(setup);
     let landscape = Landscape {
         potential: &request.potential,
         start: setup.start,
@@ -240,7 +242,7 @@ pub fn propagate<T: Real>(
             output.snapshots.push(widen(&copy));
             output
                 .momentum_densities
-                .push(momentum_density(&buffer, setup.dx));
+                .push(momentum_density(&buffer, momentum_scale(setup)));
         }
         if let Some(mut particle) = particle {
             if pause.offset > 0.0 {
@@ -318,7 +320,7 @@ mod tests {
             .map(|(u, v)| (u - v).norm())
             .fold(0.0, f64::max);
         assert!(gap < 1e-12, "{gap}");
-        let moved = (a.observations[0].position - 1.5 * 0.35).abs();
+        let moved = (a.observations[0].position[0] - 1.5 * 0.35).abs();
         assert!(moved < 1e-9, "{moved}");
         // The classical particle is at the same time too.
         assert!((a.classical[0].position - 1.5 * 0.35).abs() < 1e-12);

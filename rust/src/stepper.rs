@@ -1,7 +1,7 @@
 //! The split-step loop: plans and phase tables built once, no allocation per step.
 //!
-//! Conventions: `psi` holds the wavefunction at the grid points, normalized so
-//! that `sum |psi|^2 dx = 1`. The forward FFT is unnormalized (rustfft); the
+//! Conventions: `psi` holds the wavefunction at the grid points (C order on a
+//! 2D or 3D grid, axis 0 slowest), normalized so that `sum |psi|^2 dV = 1`. The forward FFT is unnormalized (rustfft); the
 //! kinetic factors carry the `1/N` of the inverse. A potential factor of
 //! fraction `f` multiplies by `exp(-i (V + g|psi|^2) f h / hbar) exp(-W f_abs h / hbar)`;
 //! a kinetic factor multiplies `FFT(psi)` by `exp(-i T(k) f h / hbar)`.
@@ -14,6 +14,7 @@ use rustfft::{Fft, FftPlanner};
 
 use crate::drive::{Realized, RealizedKick, Strength};
 use crate::error::{invalid, CoreError};
+use crate::ndfft::{Transforms, MAX_AXES};
 use crate::real::{density, narrow, Real};
 use crate::splitting::{Schedule, Splitting};
 
@@ -23,16 +24,23 @@ const CANCEL_POLL_STEPS: usize = 16;
 /// Everything about a run that does not change between realizations.
 #[derive(Debug, Clone)]
 pub struct Setup {
+    /// All the grid's points (the product of `shape`).
     pub points: usize,
+    /// The volume element: the spacing in 1D, the product of `spacing` beyond.
     pub dx: f64,
-    /// Position of the first grid point.
+    /// Position of the first grid point along axis 0.
     pub start: f64,
+    /// Points, spacing and first position along each axis (one entry in 1D).
+    pub shape: Vec<usize>,
+    pub spacing: Vec<f64>,
+    pub origin: Vec<f64>,
     pub hbar: f64,
     /// Kinetic energy at each wavenumber, in FFT order.
     pub kinetic: Vec<f64>,
     /// Absorbing potential `W >= 0` at each point (all zero without absorbers).
     pub absorption: Vec<f64>,
-    /// Points `0 .. left_layer_end` form the left absorbing layer.
+    /// Points `0 .. left_layer_end` form the left absorbing layer (the layer
+    /// on the low face of axis 0, all its transverse points).
     pub left_layer_end: usize,
     /// Points `right_layer_start .. points` form the right absorbing layer.
     pub right_layer_start: usize,
@@ -47,6 +55,31 @@ impl Setup {
         let n = self.points;
         if n < 2 {
             return invalid(format!("points must be >= 2, got {n}"));
+        }
+        let axes = self.shape.len();
+        if !(1..=MAX_AXES).contains(&axes)
+            || self.spacing.len() != axes
+            || self.origin.len() != axes
+            || self.shape.iter().product::<usize>() != n
+            || self.shape.contains(&0)
+        {
+            return invalid(format!(
+                "grid shape {:?}, spacing {:?} and origin {:?} must have 1 to {MAX_AXES} axes \
+                 of the same length, with {n} points in all",
+                self.shape, self.spacing, self.origin
+            ));
+        }
+        if self
+            .spacing
+            .iter()
+            .chain(&self.origin)
+            .any(|v| !v.is_finite())
+            || self.spacing.iter().any(|&d| d <= 0.0)
+        {
+            return invalid(format!(
+                "grid spacing {:?} must be finite and > 0, origin {:?} finite",
+                self.spacing, self.origin
+            ));
         }
         if self.kinetic.len() != n || self.absorption.len() != n {
             return invalid(format!(
@@ -115,23 +148,34 @@ impl<T: Real> Plans<T> {
 /// Tables that depend only on the setup (not on the realization's potential).
 pub struct Shared<T: Real> {
     pub setup: Setup,
-    pub plans: Plans<T>,
+    pub transforms: Transforms<T>,
     pub schedule: Schedule,
-    /// `exp(-i T(k) f h / hbar) / N` for each distinct kinetic fraction.
+    /// `exp(-i T(k) f h / hbar) / N` for each distinct kinetic fraction, in the
+    /// transforms' step layout.
     kinetic_factors: Vec<Vec<Complex<T>>>,
+    /// Absorbing points outside the two layers of axis 0 (the layers on the
+    /// other faces of a 2D/3D box), in increasing order.
+    sides: Vec<usize>,
 }
 
 impl<T: Real> Shared<T> {
     pub fn new(setup: Setup) -> Result<Self, CoreError> {
         setup.validate()?;
         let schedule = Schedule::new(&setup.splitting);
-        let kinetic_factors = kinetic_factors(&setup, &schedule.kinetic_fractions, &setup.kinetic);
-        let plans = Plans::new(setup.points);
+        let transforms = Transforms::new(&setup.shape);
+        let kinetic_factors = kinetic_factors(&setup, &schedule.kinetic_fractions, &setup.kinetic)
+            .iter()
+            .map(|table| transforms.step_layout(table))
+            .collect();
+        let sides = (setup.left_layer_end..setup.right_layer_start)
+            .filter(|&j| setup.absorption[j] > 0.0)
+            .collect();
         Ok(Shared {
             setup,
-            plans,
+            transforms,
             schedule,
             kinetic_factors,
+            sides,
         })
     }
 }
@@ -292,6 +336,8 @@ fn kinetic_factors<T: Real>(
 pub struct Absorbed {
     pub left: f64,
     pub right: f64,
+    /// By the layers on the faces across axis 0 (2D and 3D boxes absorbing on every face).
+    pub sides: f64,
 }
 
 /// One thread's propagator: its buffers and the current realization's tables.
@@ -315,7 +361,8 @@ impl<'a, T: Real> Stepper<'a, T> {
     pub fn new(shared: &'a Shared<T>) -> Self {
         let tables = shared.schedule.potential_fractions.len();
         let n = shared.setup.points;
-        let layer_points = shared.setup.left_layer_end + (n - shared.setup.right_layer_start);
+        let layer_points =
+            shared.setup.left_layer_end + (n - shared.setup.right_layer_start) + shared.sides.len();
         Stepper {
             shared,
             factors: PotentialFactors {
@@ -324,7 +371,7 @@ impl<'a, T: Real> Stepper<'a, T> {
                 nonlinear_angle: vec![T::zero(); tables],
                 identity: vec![false; tables],
             },
-            scratch: vec![Complex::new(T::zero(), T::zero()); shared.plans.scratch_len()],
+            scratch: vec![Complex::new(T::zero(), T::zero()); shared.transforms.scratch_len()],
             spectrum: vec![Complex::new(T::zero(), T::zero()); n],
             absorbed: Absorbed::default(),
             potential: vec![0.0; n],
@@ -357,7 +404,7 @@ impl<'a, T: Real> Stepper<'a, T> {
             ));
         }
         self.potential.copy_from_slice(potential);
-        let layers = layer_indices(setup);
+        let layers = layer_indices(setup, &self.shared.sides);
         for (table, &(fraction, absorbing)) in
             self.shared.schedule.potential_fractions.iter().enumerate()
         {
@@ -398,6 +445,9 @@ impl<'a, T: Real> Stepper<'a, T> {
             return invalid(format!(
                 "time-dependent profiles must have the grid's {n} points"
             ));
+        }
+        if realized.twist.is_some() && setup.shape.len() > 1 {
+            return invalid("a twisted boundary needs a 1D grid");
         }
         if !realized.kicks.is_empty() || !realized.terms.is_empty() {
             let hbar = setup.hbar;
@@ -466,7 +516,8 @@ impl<'a, T: Real> Stepper<'a, T> {
         if !loss.is_empty() {
             // Probability leaves only through the layers; summing it here, in
             // f64 and before the factor is applied, makes the accounting exact.
-            let (left_loss, right_loss) = loss.split_at(left_end);
+            let (left_loss, rest) = loss.split_at(left_end);
+            let (right_loss, side_loss) = rest.split_at(setup.points - right_start);
             let left: f64 = psi[..left_end]
                 .iter()
                 .zip(left_loss)
@@ -479,6 +530,16 @@ impl<'a, T: Real> Stepper<'a, T> {
                 .sum();
             self.absorbed.left += left * setup.dx;
             self.absorbed.right += right * setup.dx;
+            if !side_loss.is_empty() {
+                let sides: f64 = self
+                    .shared
+                    .sides
+                    .iter()
+                    .zip(side_loss)
+                    .map(|(&j, &l)| density(psi[j]) * l)
+                    .sum();
+                self.absorbed.sides += sides * setup.dx;
+            }
         }
         if self.factors.identity[table] {
             return;
@@ -500,20 +561,17 @@ impl<'a, T: Real> Stepper<'a, T> {
 
     fn apply_kinetic(&mut self, psi: &mut [Complex<T>], table: usize) {
         // Out of place there and back: rustfft's in-place transforms of these
-        // sizes go through a copy, which this saves.
-        let plans = &self.shared.plans;
+        // sizes go through a copy, which this saves. In 2D/3D the spectrum
+        // stays in the step layout, where the factors are.
+        let transforms = &self.shared.transforms;
         let spectrum = &mut self.spectrum[..];
-        plans
-            .forward
-            .process_outofplace_with_scratch(psi, spectrum, &mut self.scratch);
+        transforms.forward(psi, spectrum, &mut self.scratch);
         let factors = match &self.twist {
             Some(twist) => &twist.factors[table],
             None => &self.shared.kinetic_factors[table],
         };
         T::multiply(spectrum, factors);
-        plans
-            .inverse
-            .process_outofplace_with_scratch(spectrum, psi, &mut self.scratch);
+        transforms.inverse(spectrum, psi, &mut self.scratch);
     }
 
     /// Advance `steps` whole steps from a paused state (every factor applied)
@@ -613,18 +671,19 @@ impl<'a, T: Real> Stepper<'a, T> {
         &self.potential
     }
 
-    /// Forward FFT of `psi` into `out` (unnormalized), using this stepper's scratch.
+    /// Forward FFT of `psi` into `out` (unnormalized, C order), using this
+    /// stepper's buffers.
     pub fn transform(&mut self, psi: &[Complex<T>], out: &mut [Complex<T>]) {
-        out.copy_from_slice(psi);
         self.shared
-            .plans
-            .forward
-            .process_with_scratch(out, &mut self.scratch);
+            .transforms
+            .forward_natural(psi, out, &mut self.spectrum, &mut self.scratch);
     }
 }
 
-fn layer_indices(setup: &Setup) -> impl Iterator<Item = usize> + Clone {
-    (0..setup.left_layer_end).chain(setup.right_layer_start..setup.points)
+fn layer_indices<'s>(setup: &Setup, sides: &'s [usize]) -> impl Iterator<Item = usize> + Clone + 's {
+    (0..setup.left_layer_end)
+        .chain(setup.right_layer_start..setup.points)
+        .chain(sides.iter().copied())
 }
 
 /// A free particle (hbar = m = 1) in a periodic box [-20, 20) of `points` points, no
@@ -640,6 +699,9 @@ pub(crate) fn free_setup(points: usize, step: f64) -> Setup {
         points,
         dx,
         start: -20.0,
+        shape: vec![points],
+        spacing: vec![dx],
+        origin: vec![-20.0],
         hbar: 1.0,
         kinetic: free.kinetic_table(points, dx),
         absorption: vec![0.0; points],

@@ -21,6 +21,7 @@ from ..analysis.statistics import Stat, stderr, stderr_from_sums
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, PacketList, RandomPacket, Wavefunction
 from ..specs.system import System
+from . import nd
 from .propagate import run_arguments, warn_if_coarse
 from .realize import realize
 from .spectrum import Spectrum, settling_problem, spectrum_config
@@ -31,7 +32,16 @@ if TYPE_CHECKING:
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""
 
-_SCALARS = ("transmission", "reflection", "norm", "absorbed_left", "absorbed_right", "quasimomentum")
+_SCALARS = (
+    "transmission",
+    "reflection",
+    "norm",
+    "absorbed_left",
+    "absorbed_right",
+    "absorbed_sides",
+    "quasimomentum",
+)
+_PER_AXIS = ("position", "position_squared", "mean_momentum", "momentum_squared")
 _PER_SNAPSHOT = ("position", "position_squared", "participation", "mean_momentum", "momentum_squared")
 _PER_MODE = ("spectrum", "spectrum_settling")
 _MAX_MODES = limits.SPECTRUM_MODES
@@ -177,9 +187,20 @@ class EnsembleResult:
 
     @property
     def momentum_squared(self) -> list[Stat]:
-        """``<p^2>`` at each snapshot, a :class:`Stat` over realizations."""
+        """``<p^2>`` at each snapshot, a :class:`Stat` over realizations (``<|p|^2>``, summed over
+        the axes, on a 2D/3D grid; ``samples["momentum_squared"]`` keeps them apart)."""
         values = np.asarray(self.samples["momentum_squared"], dtype=float)
+        if values.ndim == 3:
+            values = values.sum(axis=2)
         return [Stat.of(values[:, s]) for s in range(values.shape[1])]
+
+    def radial_momentum(self, bins: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """On a 2D/3D grid: ``(q, n(q))``, the mean momentum distribution averaged over the angles
+        at each snapshot, ``n(q)`` of shape ``(snapshots, bins)`` (see
+        :func:`mottle.dynamics.nd.radial_momentum` for the bins)."""
+        if not isinstance(self.k, tuple):
+            raise InvalidParameterError("radial_momentum needs a 2D or 3D grid; in 1D use .momentum")
+        return nd.radial_momentum(self.k, self.momentum, bins)
 
     def to_arrays(self) -> dict[str, np.ndarray]:
         """Every field as a numpy array (samples prefixed ``samples/``), for stores."""
@@ -188,6 +209,8 @@ class EnsembleResult:
             value = getattr(self, item.name)
             if item.name == "samples":
                 arrays.update({f"samples/{name}": np.asarray(v) for name, v in value.items()})
+            elif isinstance(value, tuple):  # the axes of a 2D/3D grid, one array each
+                arrays.update({f"{item.name}/{a}": np.asarray(v) for a, v in enumerate(value)})
             else:
                 arrays[item.name] = np.asarray(value)
         return arrays
@@ -201,6 +224,10 @@ class EnsembleResult:
         values: dict[str, Any] = {}
         for item in fields(cls):
             if item.name == "samples":
+                continue
+            if f"{item.name}/0" in arrays:  # axes of a 2D/3D grid
+                axes = sorted((int(key.split("/", 1)[1]), key) for key in arrays if key.startswith(f"{item.name}/"))
+                values[item.name] = tuple(np.asarray(arrays[key]) for _, key in axes)
                 continue
             if item.name not in arrays:
                 continue  # a field added since the store was written keeps its default
@@ -228,8 +255,12 @@ def _finish(
         raise InvalidParameterError("an ensemble needs at least one realization")
     samples = {name: np.concatenate(values) for name, values in fold.samples.items()}
     snapshots = times.size
+    grid = system.grid
     for name in _PER_SNAPSHOT:
-        samples[name] = samples[name].reshape(count, snapshots)
+        per_axis = grid.ndim > 1 and name in _PER_AXIS
+        samples[name] = samples[name].reshape(count, snapshots, *((grid.ndim,) if per_axis else ()))
+    if grid.ndim == 1:
+        samples.pop("absorbed_sides")  # no other faces: the 1D samples stay as they were
     modes = modes_info[0].size
     samples["spectrum"] = samples["spectrum"].reshape(count, modes)
     # How T(k) settled over the run: checked here, not kept.
@@ -238,19 +269,26 @@ def _finish(
         problem = settling_problem(samples["spectrum"], settling, modes_info[0], duration)
         if problem is not None:
             warnings.warn(problem, UnderResolvedWarning, stacklevel=3)
-    sums = fold.sums
+    shape = (snapshots, *grid.shape)
+    sums = {name: value.reshape(shape) for name, value in fold.sums.items()}
 
     density, density_stderr = stderr_from_sums(sums["density"], sums["density_squared"], count)
     log_density, log_density_stderr = stderr_from_sums(
         sums["log_density"], sums["log_density_squared"], count
     )
-    momentum = np.fft.fftshift(sums["momentum"] / count, axes=-1)
+    momentum = np.fft.fftshift(sums["momentum"] / count, axes=tuple(range(1, grid.ndim + 1)))
+    if grid.ndim == 1:
+        x: Any = np.asarray(grid.x)
+        k: Any = np.fft.fftshift(np.asarray(grid.k)) + _bin_shift(grid)
+    else:
+        x = tuple(np.asarray(axis) for axis in grid.axes)
+        k = tuple(np.fft.fftshift(np.asarray(axis)) for axis in grid.k)
     return EnsembleResult(
         count=count,
         seed=seed,
         times=times,
-        x=np.asarray(system.grid.x),
-        k=np.fft.fftshift(np.asarray(system.grid.k)) + _bin_shift(system.grid),
+        x=x,
+        k=k,
         samples=samples,
         density=density,
         density_stderr=density_stderr,
@@ -304,8 +342,8 @@ def plan(
     spectrum=None,
 ) -> _Plan:
     """Validate an ensemble's arguments before anything large is allocated."""
-    if isinstance(system, System):
-        _checks.one_dimensional("ensemble", system.grid)
+    if isinstance(system, System) and nd.is_box(system):
+        nd.check_run(system, packet, spectrum=spectrum)
     if not isinstance(packet, (GaussianPacket, Wavefunction, RandomPacket, PacketList)):
         raise InvalidTypeError(
             "packet must be a GaussianPacket, Wavefunction, RandomPacket or PacketList, "
@@ -318,15 +356,20 @@ def plan(
     first = packet if isinstance(packet, (GaussianPacket, Wavefunction)) else packet.packet(seed, 0)
     from .drive import felt_potential
 
-    warn_if_coarse(system, first, arguments.step, felt_potential(system, realize(system, seed, 0)))
     if spectrum not in (None, True, False):
         raise InvalidTypeError(f"spectrum must be None, True or False, got {spectrum!r}")
-    spectrum = spectrum_config(system, packet, arguments.bounds, arguments.step, arguments.duration, spectrum)
-    k = np.asarray(system.grid.k)
+    if nd.is_box(system):
+        nd.warn_if_coarse(system, first, arguments.step, realize(system, seed, 0))
+        spectrum = None
+    else:
+        warn_if_coarse(system, first, arguments.step, felt_potential(system, realize(system, seed, 0)))
+        spectrum = spectrum_config(
+            system, packet, arguments.bounds, arguments.step, arguments.duration, spectrum
+        )
     modes_info = (
         (np.zeros(0), np.zeros(0))
         if spectrum is None
-        else (k[spectrum["modes"]], np.asarray(spectrum["energies"]))
+        else (np.asarray(system.grid.k)[spectrum["modes"]], np.asarray(spectrum["energies"]))
     )
     return _Plan(
         setup=_requests.setup(system, arguments.step, arguments.splitting),
@@ -340,7 +383,7 @@ def plan(
             offsets=arguments.offsets,
         ),
         absorption=system.absorption(),
-        static=system.static_potential(),
+        static=np.ravel(system.static_potential()),
         disorder=_requests.disorder_terms(system.disorder),
         packets=_requests.packets(system.grid, packet),
         times=arguments.times,

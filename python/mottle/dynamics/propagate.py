@@ -13,6 +13,7 @@ from .. import _checks, _core, _requests, limits
 from ..errors import InvalidParameterError, InvalidTypeError, UnderResolvedWarning
 from ..specs.packets import GaussianPacket, Wavefunction
 from ..specs.system import System
+from . import nd
 
 SPLITTINGS = {"strang": 2, "yoshida": 4, "blanes-moan": 4}
 # The 4th-order splitting `order=4` selects: Blanes-Moan needs twice the FFTs
@@ -77,6 +78,7 @@ class Run:
     k: np.ndarray
     momentum_squared: np.ndarray | None = None
     quasimomentum: float = 0.0
+    absorbed_sides: float = 0.0
 
     @property
     def second_moment(self) -> np.ndarray:
@@ -150,12 +152,12 @@ def check_snapshot_memory(grid, count: int) -> None:
     (16 bytes a point) and its momentum density (8), two copies at the hand-over."""
     from ..specs.grid import _memory_bytes
 
-    need = 2 * 24 * count * grid.points
+    need = 2 * 24 * count * grid.size
     have = _memory_bytes()
     if need > have:
         raise InvalidParameterError(
-            f"{count} snapshots of {grid.points} points need about {need / 2**30:.1f} GiB, more than this "
-            f"machine's {have / 2**30:.1f} GiB; keep at most {have // (48 * grid.points)} snapshots"
+            f"{count} snapshots of {grid.size} points need about {need / 2**30:.1f} GiB, more than this "
+            f"machine's {have / 2**30:.1f} GiB; keep at most {have // (48 * grid.size)} snapshots"
         )
 
 
@@ -172,9 +174,15 @@ def check_detector(detector, grid=None) -> tuple[float, float] | None:
     right = _checks.real("detector right", right)
     if left > right:
         raise InvalidParameterError(f"detector left={left} must be <= right={right}")
-    if grid is not None and (left < grid.start or right > grid.stop):
+    if grid is None:
+        return left, right
+    # On a 2D/3D grid the detector's two sides are slabs of axis 0.
+    low, high, where = (
+        (grid.start, grid.stop, "") if grid.ndim == 1 else (grid.start[0], grid.stop[0], " along axis 0")
+    )
+    if left < low or right > high:
         raise InvalidParameterError(
-            f"detector ({left:g}, {right:g}) leaves the box [{grid.start:g}, {grid.stop:g}]: "
+            f"detector ({left:g}, {right:g}) leaves the box [{low:g}, {high:g}]{where}: "
             "put both edges inside it"
         )
     return left, right
@@ -184,7 +192,10 @@ def default_detector(system: System, detector):
     """The one rule for runs that count R and T by default: ``detector=None`` is the disorder region
     ``(disorder.start, disorder.stop)`` when the system has disorder (and stays None otherwise)."""
     if detector is None and isinstance(system, System) and system.disorder is not None:
-        return (system.disorder.start, system.disorder.stop)
+        start, stop = system.disorder.start, system.disorder.stop
+        # A 2D/3D region: its extent along axis 0.
+        first = lambda bound: bound[0] if isinstance(bound, tuple) else bound  # noqa: E731
+        return (first(start), first(stop))
     return detector
 
 
@@ -193,6 +204,8 @@ def detector_bounds(system: System, detector) -> tuple[int, int] | None:
     detector = check_detector(detector, system.grid)
     if detector is None:
         return None
+    if system.grid.ndim > 1:
+        return nd.detector_bounds(system.grid, detector)
     left, right = detector
     x = system.grid.x
     return int(np.searchsorted(x, left, side="left")), int(np.searchsorted(x, right, side="right"))
@@ -243,7 +256,8 @@ def run_arguments(
     from ..errors import StepChangedWarning
 
     check_system(system)
-    _checks.one_dimensional("a run (propagate, ensemble, classical_ensemble, studies)", system.grid)
+    if nd.is_box(system):
+        nd.check_run(system)
     duration = _checks.positive("duration", duration)
     step = _checks.positive("step", step)
     splitting = resolve_splitting(order, splitting)
@@ -414,7 +428,8 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
     ``index``'s, the :class:`RunArguments` and the potential realized.
     """
     check_system(system)
-    _checks.one_dimensional("propagate", system.grid)
+    if nd.is_box(system):
+        nd.check_run(system, packet)
     seed = _checks.integer("seed", seed, minimum=0)
     index = _checks.integer("index", index, minimum=0)
     if hasattr(packet, "packet") and not isinstance(packet, (GaussianPacket, Wavefunction)):
@@ -429,7 +444,10 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
     potential = realize(system, seed, index)
     from .drive import felt_potential
 
-    warn_if_coarse(system, packet, arguments.step, felt_potential(system, potential))
+    if nd.is_box(system):
+        nd.warn_if_coarse(system, packet, arguments.step, potential)
+    else:
+        warn_if_coarse(system, packet, arguments.step, felt_potential(system, potential))
     return packet, arguments, potential
 
 
@@ -465,18 +483,19 @@ def propagate(
         system, packet, duration, step, order, seed, index, snapshots, detector, splitting
     )
     bounds = arguments.bounds
-    psi0 = packet.values(system.grid).astype(np.complex128)
+    grid = system.grid
+    psi0 = packet.values(grid).astype(np.complex128).ravel()
     from .drive import is_driven
 
-    # The classical trajectory moves in the static potential on a periodic grid only.
-    classical = classical and not is_driven(system)
+    # The classical trajectory moves in the static potential on a periodic 1D grid only.
+    classical = classical and not is_driven(system) and grid.ndim == 1
     start = initial_phase_space(system, packet) if classical else None
     drive = _requests.drive(system, arguments.step, arguments.steps)
     out = _core.propagate_one(
         _requests.setup(system, arguments.step, arguments.splitting),
         _requests.run(arguments.steps, arguments.pauses, bounds, start, precision, offsets=arguments.offsets),
         system.absorption(),
-        potential,
+        np.ravel(potential),
         psi0,
         None if drive is None else (drive, int(seed), int(index)),
     )
@@ -484,10 +503,19 @@ def propagate(
     absorbed = out["classical_absorbed"] != 0
     classical_position = np.where(absorbed, np.nan, out["classical_position"]) if classical else None
     classical_momentum = np.where(absorbed, np.nan, out["classical_momentum"]) if classical else None
+    shape = grid.shape
+    snapshots_out = out["snapshots"].reshape(-1, *shape)
+    if grid.ndim == 1:
+        momentum_density = np.fft.fftshift(out["momentum_density"], axes=-1)
+        k = np.fft.fftshift(np.asarray(grid.k)) + grid.shift(out["quasimomentum"])
+    else:
+        axes = tuple(range(1, grid.ndim + 1))
+        momentum_density = np.fft.fftshift(out["momentum_density"].reshape(-1, *shape), axes=axes)
+        k = tuple(np.fft.fftshift(np.asarray(axis)) for axis in grid.k)
     return Run(
         times=arguments.times,
-        psi=out["psi"],
-        snapshots=out["snapshots"],
+        psi=out["psi"].reshape(shape),
+        snapshots=snapshots_out,
         norm=float(last["norm"][0]),
         absorbed_left=float(last["absorbed_left"][0]),
         absorbed_right=float(last["absorbed_right"][0]),
@@ -504,12 +532,13 @@ def propagate(
         transmissions=None if bounds is None else seen["transmission"],
         classical_position=classical_position,
         classical_momentum=classical_momentum,
-        x=system.grid.x,
-        dx=system.grid.dx,
+        x=grid.x if grid.ndim == 1 else grid.axes,
+        dx=grid.dx,
         step=arguments.step,
         participation=seen["participation"],
-        momentum_density=np.fft.fftshift(out["momentum_density"], axes=-1),
-        k=np.fft.fftshift(np.asarray(system.grid.k)) + system.grid.shift(out["quasimomentum"]),
+        momentum_density=momentum_density,
+        k=k,
         momentum_squared=seen["momentum_squared"],
         quasimomentum=float(out["quasimomentum"]),
+        absorbed_sides=float(last["absorbed_sides"][0]),
     )

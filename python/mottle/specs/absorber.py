@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .. import _checks
+from ..errors import InvalidParameterError, InvalidTypeError
 from .grid import Grid
 
 _C = 2.62206
@@ -35,6 +36,13 @@ def _profile(y: np.ndarray) -> np.ndarray:
 class Absorber:
     """Absorbing layers of ``width`` at both box ends.
 
+    On a 2D/3D grid the layers lie on both faces of every axis (``axes=None``), or of the axes
+    listed in ``axes`` only: ``axes=(0,)`` absorbs at the two ends of axis 0 and leaves the
+    transverse boundaries periodic, the geometry of a slab. Where layers of two axes meet (the
+    box's edges and corners) their ``W`` add. The probability absorbed is counted on each side of
+    axis 0 (``absorbed_left``, ``absorbed_right``) and on the other faces together
+    (``absorbed_sides``).
+
     ``strength`` scales the profile (an energy). By default it is the layer's
     design energy ``E_min = (hbar**2/2m) (2 pi/width)**2``, for which the profile
     reflects less than 1e-3 of any wave with energy above ``2 E_min``; a run
@@ -44,11 +52,35 @@ class Absorber:
 
     width: float
     strength: float | None = None
+    axes: tuple[int, ...] | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "width", _checks.positive("absorber width", self.width))
         if self.strength is not None:
             object.__setattr__(self, "strength", _checks.positive("absorber strength", self.strength))
+        if self.axes is not None:
+            try:
+                axes = tuple(self.axes)
+            except TypeError:
+                raise InvalidTypeError(f"absorber axes must be a tuple of axes, got {self.axes!r}") from None
+            if not axes or any(isinstance(a, bool) or not isinstance(a, int) or a < 0 for a in axes):
+                raise InvalidParameterError(
+                    f"absorber axes must be distinct axis numbers 0, 1 or 2, got {self.axes!r}"
+                )
+            if len(set(axes)) != len(axes):
+                raise InvalidParameterError(f"absorber axes must be distinct, got {self.axes!r}")
+            object.__setattr__(self, "axes", tuple(sorted(axes)))
+
+    def absorbing_axes(self, grid: Grid) -> tuple[int, ...]:
+        """The axes whose two faces carry a layer (every axis of the grid by default)."""
+        if self.axes is None:
+            return tuple(range(grid.ndim))
+        if max(self.axes) >= grid.ndim:
+            raise InvalidParameterError(
+                f"absorber axes {self.axes} include an axis the {grid.ndim}D grid does not have: "
+                f"use axes among {tuple(range(grid.ndim))}"
+            )
+        return self.axes
 
     def design_energy(self, model, dx: float) -> float:
         """``E_min``, above which the default profile absorbs without reflecting."""
@@ -61,13 +93,24 @@ class Absorber:
         return 2.0 * math.pi * math.sqrt(2.0 * hbar_sq_over_2m / energy)
 
     def values(self, grid: Grid, model) -> np.ndarray:
-        """``W(x) >= 0`` at the grid points (zero outside the layers)."""
-        strength = self.strength if self.strength is not None else self.design_energy(model, grid.dx)
-        x = np.asarray(grid.x)
-        depth = np.maximum(x - (grid.stop - self.width), (grid.start + self.width) - x)
+        """``W(x) >= 0`` at the grid points (zero outside the layers), of the grid's shape."""
+        if grid.ndim == 1:
+            return self._along(np.asarray(grid.x), grid.start, grid.stop, grid.dx, model)
+        total = np.zeros(grid.shape)
+        for a in self.absorbing_axes(grid):
+            profile = self._along(grid.axes[a], grid.start[a], grid.stop[a], grid.dx[a], model)
+            view = [1] * grid.ndim
+            view[a] = grid.shape[a]
+            total = total + profile.reshape(view)
+        return total
+
+    def _along(self, x: np.ndarray, start: float, stop: float, dx: float, model) -> np.ndarray:
+        """The 1D profile on the coordinates ``x`` of a box ``[start, stop)`` of spacing ``dx``."""
+        strength = self.strength if self.strength is not None else self.design_energy(model, dx)
+        depth = np.maximum(x - (stop - self.width), (start + self.width) - x)
         inside = depth > 0.0
-        y_max = _C * (1.0 - 0.5 * grid.dx / self.width)
+        y_max = _C * (1.0 - 0.5 * dx / self.width)
         y = np.minimum(_C * depth[inside] / self.width, y_max)
-        values = np.zeros(grid.points)
+        values = np.zeros(x.size)
         values[inside] = strength * _profile(y)
         return values

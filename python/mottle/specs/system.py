@@ -73,18 +73,22 @@ class System:
                 raise InvalidTypeError(
                     f"absorber must be a mottle.Absorber, got {type(self.absorber).__name__}"
                 )
-            _checks.one_dimensional("Absorber", self.grid)
-            if self.absorber.width >= 0.5 * self.grid.length:
-                raise InvalidParameterError(
-                    f"absorber width {self.absorber.width} leaves no room inside the box of length "
-                    f"{self.grid.length}: use width < {0.5 * self.grid.length:g} (each layer)"
-                )
-            spacings = limits.ABSORBER_MIN_SPACINGS
-            if self.absorber.width < spacings * self.grid.dx:
-                raise InvalidParameterError(
-                    f"absorber width {self.absorber.width} spans fewer than {spacings:g} grid spacings "
-                    f"(dx = {self.grid.dx:.4g}): use width >= {spacings * self.grid.dx:.4g}"
-                )
+            grid = self.grid
+            for a in self.absorber.absorbing_axes(grid):
+                length = grid.length if grid.ndim == 1 else grid.length[a]
+                dx = grid.dx if grid.ndim == 1 else grid.dx[a]
+                where = "" if grid.ndim == 1 else f" along axis {a}"
+                if self.absorber.width >= 0.5 * length:
+                    raise InvalidParameterError(
+                        f"absorber width {self.absorber.width} leaves no room inside the box of length "
+                        f"{length}{where}: use width < {0.5 * length:g} (each layer)"
+                    )
+                spacings = limits.ABSORBER_MIN_SPACINGS
+                if self.absorber.width < spacings * dx:
+                    raise InvalidParameterError(
+                        f"absorber width {self.absorber.width} spans fewer than {spacings:g} grid spacings"
+                        f"{where} (dx = {dx:.4g}): use width >= {spacings * dx:.4g}"
+                    )
         object.__setattr__(self, "nonlinearity", _checks.real("nonlinearity", self.nonlinearity))
 
     @property
@@ -102,16 +106,20 @@ class System:
         return np.asarray(self.model.kinetic(self.grid.k, self.grid.dx), dtype=float)
 
     def absorption(self) -> np.ndarray:
-        """``W(x) >= 0`` at the grid points (zeros without absorbers)."""
+        """``W(x) >= 0`` at the grid points, flat in C order (zeros without absorbers)."""
         if self.absorber is None:
-            return np.zeros(self.grid.points)
-        return self.absorber.values(self.grid, self.model)
+            return np.zeros(self.grid.size)
+        return np.ravel(self.absorber.values(self.grid, self.model))
 
     def layer_bounds(self) -> tuple[int, int]:
-        """``(left_end, right_start)``: points ``< left_end`` and ``>= right_start`` are in the layers."""
-        if self.absorber is None:
-            return 0, self.grid.points
-        x = self.grid.x
-        left_end = int(np.searchsorted(x, self.grid.start + self.absorber.width, side="left"))
-        right_start = int(np.searchsorted(x, self.grid.stop - self.absorber.width, side="right"))
-        return left_end, right_start
+        """``(left_end, right_start)``: flat points ``< left_end`` and ``>= right_start`` are in the
+        layers at the two ends of axis 0 (whole slabs of the transverse points on a 2D/3D grid)."""
+        grid = self.grid
+        if self.absorber is None or 0 not in self.absorber.absorbing_axes(grid):
+            return 0, grid.size
+        x = grid.axes[0]
+        start, stop = (grid.start, grid.stop) if grid.ndim == 1 else (grid.start[0], grid.stop[0])
+        left_end = int(np.searchsorted(x, start + self.absorber.width, side="left"))
+        right_start = int(np.searchsorted(x, stop - self.absorber.width, side="right"))
+        transverse = grid.size // grid.shape[0]
+        return left_end * transverse, right_start * transverse

@@ -53,7 +53,10 @@ fn chunk_dict<'py>(
     snapshots: usize,
     points: usize,
     modes: usize,
+    axes: usize,
 ) -> PyResult<Bound<'py, PyDict>> {
+    // The moments per axis: `count x (snapshots x axes)`, axis fastest.
+    let moments = snapshots * axes;
     let dict = PyDict::new(py);
     dict.set_item("start", chunk.start)?;
     dict.set_item("count", chunk.count)?;
@@ -63,25 +66,26 @@ fn chunk_dict<'py>(
         ("norm", chunk.norm),
         ("absorbed_left", chunk.absorbed_left),
         ("absorbed_right", chunk.absorbed_right),
+        ("absorbed_sides", chunk.absorbed_sides),
         ("quasimomentum", chunk.quasimomentum),
     ] {
         dict.set_item(name, values.into_pyarray(py))?;
     }
     for (name, values, rows, columns) in [
-        ("position", chunk.position, chunk.count, snapshots),
+        ("position", chunk.position, chunk.count, moments),
         (
             "position_squared",
             chunk.position_squared,
             chunk.count,
-            snapshots,
+            moments,
         ),
         ("participation", chunk.participation, chunk.count, snapshots),
-        ("mean_momentum", chunk.mean_momentum, chunk.count, snapshots),
+        ("mean_momentum", chunk.mean_momentum, chunk.count, moments),
         (
             "momentum_squared",
             chunk.momentum_squared,
             chunk.count,
-            snapshots,
+            moments,
         ),
         ("density", chunk.density, snapshots, points),
         ("density_squared", chunk.density_squared, snapshots, points),
@@ -160,6 +164,7 @@ fn ensemble_chunks<'py>(
         Ok((setup, spec))
     })();
     let (setup, spec) = prepared.map_err(|error| to_pyerr(py, error))?;
+    let axes = setup.shape.len();
     let snapshots = spec.pauses.len();
     let modes = spec
         .spectrum
@@ -172,7 +177,7 @@ fn ensemble_chunks<'py>(
     })?;
     let list = PyList::empty(py);
     for chunk in chunks {
-        list.append(chunk_dict(py, chunk, snapshots, points, modes)?)?;
+        list.append(chunk_dict(py, chunk, snapshots, points, modes, axes)?)?;
     }
     Ok(list)
 }

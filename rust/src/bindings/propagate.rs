@@ -15,6 +15,7 @@ use super::request::request;
 use super::{run_detached, table};
 use crate::drive::Realized;
 use crate::error::CoreError;
+use crate::ndfft::MAX_AXES;
 use crate::observables::{Detector, Observation};
 use crate::propagate::{propagate, Output, Pause, Request};
 use crate::real::Real;
@@ -27,6 +28,10 @@ request! {
         points: usize,
         dx: f64,
         start: f64,
+        /// Points, spacing and first position per axis (one entry in 1D).
+        shape: Vec<usize>,
+        spacing: Vec<f64>,
+        origin: Vec<f64>,
         model: ModelRequest,
         nonlinearity: f64,
         step: f64,
@@ -39,15 +44,33 @@ request! {
 impl SetupRequest {
     /// The stepper's setup, its kinetic table from the model (`Dispersion::kinetic_table`).
     pub(crate) fn setup(self, absorption: Vec<f64>) -> Result<Setup, CoreError> {
-        let kinetic = self
-            .model
-            .medium(self.dx)?
-            .dispersion
-            .kinetic_table(self.points, self.dx);
+        let kinetic = if self.shape.len() == 1 {
+            self.model
+                .medium(self.dx)?
+                .dispersion
+                .kinetic_table(self.points, self.dx)
+        } else {
+            // Each axis's spacing checked against the model (a lattice's sites).
+            for &dx in &self.spacing {
+                self.model.medium(dx)?;
+            }
+            self.model
+                .dispersion()?
+                .kinetic_table_nd(&self.shape, &self.spacing)
+        };
+        if kinetic.len() != self.points {
+            return Err(CoreError::InvalidInput(format!(
+                "grid shape {:?} does not hold its {} points",
+                self.shape, self.points
+            )));
+        }
         Ok(Setup {
             points: self.points,
             dx: self.dx,
             start: self.start,
+            shape: self.shape,
+            spacing: self.spacing,
+            origin: self.origin,
             hbar: self.model.hbar(),
             kinetic,
             absorption,
@@ -140,9 +163,12 @@ fn run_in<T: Real>(
     propagate(&shared, &request, cancel)
 }
 
+/// One array per quantity, one entry per observation; the per-axis moments are
+/// `observations x axes` tables on a 2D/3D grid.
 pub(crate) fn observations_dict<'py>(
     py: Python<'py>,
     observations: &[Observation],
+    axes: usize,
 ) -> PyResult<Bound<'py, PyDict>> {
     let dict = PyDict::new(py);
     let column = |f: fn(&Observation) -> f64| {
@@ -155,10 +181,20 @@ pub(crate) fn observations_dict<'py>(
     dict.set_item("norm", column(|o| o.norm))?;
     dict.set_item("absorbed_left", column(|o| o.absorbed.left))?;
     dict.set_item("absorbed_right", column(|o| o.absorbed.right))?;
-    dict.set_item("position", column(|o| o.position))?;
-    dict.set_item("position_squared", column(|o| o.position_squared))?;
-    dict.set_item("momentum", column(|o| o.momentum))?;
-    dict.set_item("momentum_squared", column(|o| o.momentum_squared))?;
+    let per_axis = |name: &str, f: fn(&Observation) -> [f64; MAX_AXES]| -> PyResult<()> {
+        if axes == 1 {
+            let values: Vec<f64> = observations.iter().map(|o| f(o)[0]).collect();
+            dict.set_item(name, values.into_pyarray(py))
+        } else {
+            let values = observations.iter().flat_map(|o| f(o)[..axes].to_vec());
+            dict.set_item(name, table(py, values.collect(), observations.len(), axes)?)
+        }
+    };
+    per_axis("position", |o| o.position)?;
+    per_axis("position_squared", |o| o.position_squared)?;
+    per_axis("momentum", |o| o.momentum)?;
+    per_axis("momentum_squared", |o| o.momentum_squared)?;
+    dict.set_item("absorbed_sides", column(|o| o.absorbed.sides))?;
     dict.set_item("energy", column(|o| o.energy))?;
     dict.set_item("participation", column(|o| o.participation))?;
     dict.set_item("reflection", column(|o| o.reflection))?;
@@ -210,6 +246,7 @@ fn propagate_one<'py>(
         Ok::<_, CoreError>((setup, request))
     })();
     let (setup, request) = prepared.map_err(|error| to_pyerr(py, error))?;
+    let axes = setup.shape.len();
     let precision = run.precision;
     let output = run_detached(py, move |cancel| match precision {
         Precision::Double => run_in::<f64>(setup, request, cancel),
@@ -228,10 +265,13 @@ fn propagate_one<'py>(
         "momentum_density",
         table(py, momentum, snapshot_count, points)?,
     )?;
-    dict.set_item("observations", observations_dict(py, &output.observations)?)?;
+    dict.set_item(
+        "observations",
+        observations_dict(py, &output.observations, axes)?,
+    )?;
     dict.set_item(
         "last",
-        observations_dict(py, std::slice::from_ref(&output.last))?,
+        observations_dict(py, std::slice::from_ref(&output.last), axes)?,
     )?;
     let positions: Vec<f64> = output.classical.iter().map(|p| p.position).collect();
     let momenta: Vec<f64> = output.classical.iter().map(|p| p.momentum).collect();
