@@ -119,14 +119,10 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
 @pytest.mark.parametrize(
     ("what", "call"),
     [
-        ("propagate", lambda: mo.propagate(mo.System(BOX), PACKET, 1.0, 0.1)),
-        ("propagate", lambda: mo.reference.propagate(mo.System(BOX), PACKET, 1.0, 0.1)),
-        ("ensemble", lambda: mo.ensemble(mo.System(BOX), PACKET, 1.0, 0.1, realizations=2)),
         ("classical_ensemble", lambda: mo.classical_ensemble(mo.System(BOX), PACKET, 1.0, 0.1, 10)),
         ("ground_state", lambda: mo.ground_state(mo.System(BOX))),
         ("transfer-matrix", lambda: mo.lyapunov(mo.System(BOX), 1.0, 2)),
         ("transfer-matrix", lambda: mo.transmission_spectrum(mo.System(BOX), [1.0])),
-        ("realize", lambda: mo.realize(mo.System(BOX))),
         ("Barrier potential", lambda: mo.System(BOX, potential=mo.Barrier(1.0, 0.0, 1.0))),
         (
             "Harmonic potential",
@@ -134,7 +130,6 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
         ),
         (r"disorder \(Speckle\)", lambda: mo.System(BOX, disorder=mo.Speckle(0.1, 1.0, -5.0, 5.0))),
         (r"disorder \(WhiteNoise\)", lambda: mo.WhiteNoise(0.1, -5.0, 5.0).validate(BOX)),
-        ("Absorber", lambda: mo.System(BOX, absorber=mo.Absorber(5.0))),
         ("GaussianPacket", lambda: PACKET.validate(BOX)),
         ("Wavefunction", lambda: mo.Wavefunction(np.ones(32)).validate(BOX)),
         (r"Grid\.x", lambda: BOX.x),

@@ -114,7 +114,10 @@ pub fn run_chunks<T: Real>(
     validate_pauses(&spec.pauses, spec.steps, setup.step)?;
     if setup.shape.len() > 1 {
         let drawn = matches!(spec.packets, crate::packets::PacketSource::Gaussian { .. });
-        if drawn || spec.spectrum.is_some() || spec.drive.twist.is_some() || !spec.disorder.is_empty()
+        if drawn
+            || spec.spectrum.is_some()
+            || spec.drive.twist.is_some()
+            || !spec.disorder.is_empty()
         {
             return invalid(format!(
                 "on a {}D grid an ensemble takes fixed or listed packets, no spectrum, no \

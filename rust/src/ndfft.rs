@@ -221,7 +221,8 @@ mod tests {
             let x = sample(n);
             let expected = direct(&shape, &x, -1.0);
             let mut scratch = vec![Complex64::default(); plans.scratch_len()];
-            let (mut out, mut work) = (vec![Complex64::default(); n], vec![Complex64::default(); n]);
+            let (mut out, mut work) =
+                (vec![Complex64::default(); n], vec![Complex64::default(); n]);
             plans.forward_natural(&x, &mut out, &mut work, &mut scratch);
             let gap = out
                 .iter()

@@ -680,7 +680,10 @@ impl<'a, T: Real> Stepper<'a, T> {
     }
 }
 
-fn layer_indices<'s>(setup: &Setup, sides: &'s [usize]) -> impl Iterator<Item = usize> + Clone + 's {
+fn layer_indices<'s>(
+    setup: &Setup,
+    sides: &'s [usize],
+) -> impl Iterator<Item = usize> + Clone + 's {
     (0..setup.left_layer_end)
         .chain(setup.right_layer_start..setup.points)
         .chain(sides.iter().copied())

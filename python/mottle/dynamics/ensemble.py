@@ -226,7 +226,9 @@ class EnsembleResult:
             if item.name == "samples":
                 continue
             if f"{item.name}/0" in arrays:  # axes of a 2D/3D grid
-                axes = sorted((int(key.split("/", 1)[1]), key) for key in arrays if key.startswith(f"{item.name}/"))
+                axes = sorted(
+                    (int(key.split("/", 1)[1]), key) for key in arrays if key.startswith(f"{item.name}/")
+                )
                 values[item.name] = tuple(np.asarray(arrays[key]) for _, key in axes)
                 continue
             if item.name not in arrays:

@@ -1,0 +1,224 @@
+"""The split step on 2D and 3D grids: free spreading, the harmonic well, the lattice band, the
+order of the splittings, the absorbers and the detector along axis 0, and ensembles that do not
+depend on threads or chunks."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import mottle as mo
+from mottle.errors import InvalidParameterError
+
+BOX = mo.Grid(points=(128, 64), length=(80.0, 40.0))
+
+
+def free_width(width: float, t, hbar: float = 1.0, mass: float = 1.0):
+    """rms width of a free Gaussian |psi|^2: s(t)^2 = s^2 + (hbar t / (2 m s))^2 (Cohen-Tannoudji,
+    Diu & Laloe, Quantum Mechanics (1977), complement G_I)."""
+    return np.sqrt(width**2 + (hbar * np.asarray(t) / (2.0 * mass * width)) ** 2)
+
+
+def test_a_free_2d_gaussian_spreads_along_each_axis_by_the_1d_formula():
+    model = mo.Continuum(hbar=0.8, mass=1.7)
+    packet = mo.GaussianPacket(center=(-5.0, 3.0), wavenumber=(1.2, -0.5), width=(2.0, 3.0))
+    run = mo.propagate(mo.System(BOX, model=model), packet, 6.0, 0.05, snapshots=[2.0, 4.0, 6.0])
+    width = np.sqrt(run.position_squared - run.position**2)
+    for axis, s in enumerate((2.0, 3.0)):
+        expected = free_width(s, run.times, hbar=0.8, mass=1.7)
+        assert np.max(np.abs(width[:, axis] / expected - 1.0)) < 1e-10
+    # The centre moves at hbar k / m along each axis (the same source).
+    velocity = 0.8 * np.array([1.2, -0.5]) / 1.7
+    assert np.allclose(run.position, np.array([-5.0, 3.0]) + np.outer(run.times, velocity), atol=1e-10)
+    assert run.psi.shape == BOX.shape and run.snapshots.shape == (3, *BOX.shape)
+    assert abs(run.norm - 1.0) < 1e-12
+
+
+def test_a_free_3d_gaussian_spreads_along_each_axis_by_the_1d_formula():
+    grid = mo.Grid(points=(32, 32, 32), length=(30.0, 30.0, 30.0))
+    packet = mo.GaussianPacket(center=(0.0, 1.0, -1.0), wavenumber=(0.5, 0.0, 0.0), width=(1.5, 2.0, 2.5))
+    run = mo.propagate(mo.System(grid), packet, 2.0, 0.05, snapshots=[1.0, 2.0])
+    width = np.sqrt(run.position_squared - run.position**2)
+    for axis, s in enumerate((1.5, 2.0, 2.5)):
+        # Cohen-Tannoudji, Diu & Laloe (1977), complement G_I; the 32-point axes sample the packet
+        # to about 1e-9 of its width.
+        assert np.max(np.abs(width[:, axis] / free_width(s, run.times) - 1.0)) < 1e-8
+
+
+def test_a_2d_coherent_state_in_an_isotropic_well_keeps_its_width_and_oscillates():
+    # Ground-state width of a harmonic well, s = sqrt(hbar / (2 m omega)), displaced by x0: the
+    # centre follows x0 cos(omega t) and the width stays s (a coherent state; Cohen-Tannoudji, Diu &
+    # Laloe (1977), complement G_V).
+    omega, x0 = 0.5, 4.0
+    s = math.sqrt(1.0 / (2.0 * omega))
+    system = mo.System(mo.Grid(points=(128, 128), length=(40.0, 40.0)), potential=mo.Harmonic(omega))
+    packet = mo.GaussianPacket(center=(x0, 0.0), wavenumber=(0.0, 0.0), width=s)
+    times = np.linspace(1.0, 2.0 * math.pi / omega, 6)
+    run = mo.propagate(system, packet, times[-1], 0.005, snapshots=times, order=4)
+    # Order 4 at dt = 0.005: the splitting error is below 1e-8 here.
+    assert np.max(np.abs(run.position[:, 0] - x0 * np.cos(omega * run.times))) < 1e-7
+    assert np.max(np.abs(run.position[:, 1])) < 1e-10
+    width = np.sqrt(run.position_squared - run.position**2)
+    assert np.max(np.abs(width - s)) < 1e-7
+
+
+def test_a_plane_wave_on_the_square_lattice_turns_at_the_band_energy():
+    # Tight binding on a square lattice: E(k) = -2 t (cos kx a + cos ky a) (Ashcroft & Mermin, Solid
+    # State Physics (1976), eq. 10.31 for the simple cubic lattice, here in 2D). A plane wave on the
+    # grid is an exact eigenstate: after t it has turned by exp(-i E t / hbar).
+    grid = mo.Grid(points=(16, 32), length=(16.0, 32.0))
+    system = mo.System(grid, model=mo.Lattice(hopping=0.7))
+    kx, ky = 2 * math.pi * 3 / 16, 2 * math.pi * 5 / 32
+    x, y = np.meshgrid(*grid.axes, indexing="ij")
+    psi = np.exp(1j * (kx * x + ky * y))
+    run = mo.propagate(system, mo.Wavefunction(psi), 3.0, 0.1)
+    energy = -2 * 0.7 * (math.cos(kx) + math.cos(ky))
+    turned = run.psi / (psi / np.sqrt(np.sum(np.abs(psi) ** 2)))
+    assert np.max(np.abs(turned - np.exp(-1j * energy * 3.0))) < 1e-12
+
+
+@pytest.mark.parametrize(("order", "slope"), [(2, 2.0), (4, 4.0)])
+def test_the_splittings_keep_their_order_in_2d(order, slope):
+    # Richardson's test of the global error against a run with a step eight times smaller (common
+    # practice): error(dt) ~ dt^order.
+    system = mo.System(mo.Grid(points=(64, 64), length=(30.0, 30.0)), potential=mo.Harmonic(0.4))
+    packet = mo.GaussianPacket(center=(2.0, -1.0), wavenumber=(1.0, 0.5), width=1.5)
+    duration = 2.0
+    steps = [0.2, 0.1, 0.05]
+    fine = mo.propagate(system, packet, duration, steps[-1] / 8, order=order).psi
+    dv = np.prod(system.grid.dx)
+    errors = [
+        math.sqrt(
+            np.sum(np.abs(mo.propagate(system, packet, duration, dt, order=order).psi - fine) ** 2) * dv
+        )
+        for dt in steps
+    ]
+    measured = np.polyfit(np.log(steps), np.log(errors), 1)[0]
+    assert abs(measured - slope) < 0.15, (errors, measured)
+
+
+def test_slab_absorbers_count_what_leaves_through_each_end_of_axis_0():
+    # Layers on axis 0 only: the transverse boundaries stay periodic and nothing leaves sideways.
+    system = mo.System(BOX, absorber=mo.Absorber(10.0, axes=(0,)))
+    packet = mo.GaussianPacket(center=(10.0, 0.0), wavenumber=(2.0, 1.0), width=3.0)
+    run = mo.propagate(system, packet, 30.0, 0.02, detector=(-15.0, 15.0))
+    assert run.absorbed_right > 0.9 and run.absorbed_sides == 0.0
+    # Probability leaves only through the layers, and the accounting is exact.
+    assert abs(run.norm + run.absorbed_left + run.absorbed_right - 1.0) < 1e-12
+    # T counts the slab x_0 > right and what its layer absorbed; R the same on the left.
+    x0 = BOX.axes[0]
+    density = np.abs(run.psi) ** 2 * np.prod(BOX.dx)
+    assert abs(run.transmission - (float(np.sum(density[x0 > 15.0])) + run.absorbed_right)) < 1e-12
+    assert abs(run.reflection - (float(np.sum(density[x0 < -15.0])) + run.absorbed_left)) < 1e-12
+
+
+def test_layers_on_every_face_count_the_sides_apart():
+    system = mo.System(BOX, absorber=mo.Absorber(6.0))
+    packet = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.5, 1.5), width=3.0)
+    run = mo.propagate(system, packet, 40.0, 0.02)
+    assert run.absorbed_sides > 0.1 and run.absorbed_right > 0.1
+    total = run.norm + run.absorbed_left + run.absorbed_right + run.absorbed_sides
+    assert abs(total - 1.0) < 1e-12
+
+
+def test_the_momentum_density_has_the_grids_shape_and_its_integral_is_the_norm():
+    packet = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.5, -0.5), width=(2.0, 3.0))
+    run = mo.propagate(mo.System(BOX), packet, 1.0, 0.05, snapshots=[1.0])
+    kx, ky = run.k
+    assert np.all(np.diff(kx) > 0) and kx[BOX.shape[0] // 2] == 0.0
+    density = run.momentum_density[0]
+    dk = (kx[1] - kx[0]) * (ky[1] - ky[0])
+    assert abs(np.sum(density) * dk - 1.0) < 1e-12
+    i, j = np.unravel_index(np.argmax(density), density.shape)
+    assert abs(kx[i] - 1.5) <= kx[1] - kx[0] and abs(ky[j] + 0.5) <= ky[1] - ky[0]
+    assert np.allclose(run.momentum[0], [1.5, -0.5], atol=1e-10)
+
+
+def test_an_ensemble_in_2d_is_the_same_for_any_threads_and_chunks():
+    system = mo.System(BOX, potential=mo.Harmonic(0.1), absorber=mo.Absorber(8.0, axes=(0,)))
+    packet = mo.GaussianPacket(center=(-5.0, 0.0), wavenumber=(1.0, 0.3), width=3.0)
+    args = (system, packet, 1.0, 0.05)
+    one = mo.ensemble(*args, 40, snapshots=[0.5, 1.0], threads=1, detector=(-10.0, 10.0))
+    two = mo.ensemble(*args, 40, snapshots=[0.5, 1.0], threads=2, detector=(-10.0, 10.0))
+    parts = [
+        mo.ensemble_partial(*args, start, count, snapshots=[0.5, 1.0], detector=(-10.0, 10.0))
+        for start, count in ((0, 16), (16, 24))
+    ]
+    merged = mo.merge_partials(parts, system)
+    for other in (two, merged):
+        for name, value in one.to_arrays().items():
+            assert np.array_equal(value, other.to_arrays()[name], equal_nan=True), name
+    assert one.density.shape == (2, *BOX.shape) and one.momentum.shape == (2, *BOX.shape)
+    assert one.samples["position"].shape == (40, 2, 2)
+    assert one.second_moment.shape == (2, 2)
+    # A fixed packet in a fixed potential: every realization is the single run.
+    run = mo.propagate(system, packet, 1.0, 0.05, snapshots=[0.5, 1.0], detector=(-10.0, 10.0))
+    assert np.allclose(one.density, np.abs(run.snapshots) ** 2, rtol=0, atol=1e-13)
+    assert np.allclose(one.momentum, run.momentum_density, rtol=0, atol=1e-13)
+
+
+def test_the_store_form_of_a_2d_result_round_trips():
+    system = mo.System(BOX)
+    packet = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.0, 0.0), width=3.0)
+    result = mo.ensemble(system, packet, 0.5, 0.05, 16, snapshots=[0.5])
+    again = mo.EnsembleResult.from_arrays(result.to_arrays())
+    assert isinstance(again.k, tuple) and len(again.k) == 2
+    for name, value in result.to_arrays().items():
+        assert np.array_equal(value, again.to_arrays()[name], equal_nan=True), name
+
+
+def test_the_radial_momentum_of_an_isotropic_packet_integrates_to_the_norm():
+    grid = mo.Grid(points=(128, 128), length=(60.0, 60.0))
+    packet = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(0.0, 0.0), width=2.0)
+    result = mo.ensemble(mo.System(grid), packet, 0.1, 0.05, 16, snapshots=[0.1])
+    q, n = result.radial_momentum()
+    dq = q[1] - q[0]
+    # 2 pi q n(q) dq summed over shells (midpoint rule), the shells reaching well past the packet's
+    # momentum spread 1/(2 s) = 0.25: the norm.
+    assert abs(np.sum(2 * math.pi * q * n[0] * dq) - 1.0) < 1e-3
+    # The isotropic Gaussian n(k) = (2 s^2 / pi) exp(-2 s^2 k^2) (its Fourier transform; common practice).
+    expected = 2 * 4.0 / math.pi * np.exp(-2 * 4.0 * q**2)
+    assert np.max(np.abs(n[0] - expected)) < 2e-2 * expected.max()
+
+
+def test_single_precision_in_2d_follows_double():
+    system = mo.System(BOX, potential=mo.Harmonic(0.1))
+    packet = mo.GaussianPacket(center=(-5.0, 0.0), wavenumber=(1.0, 0.3), width=3.0)
+    double = mo.ensemble(system, packet, 2.0, 0.05, 16, snapshots=[2.0])
+    single = mo.ensemble(system, packet, 2.0, 0.05, 16, snapshots=[2.0], precision="single")
+    assert np.max(np.abs(single.density - double.density)) < 1e-5 * np.max(double.density)
+
+
+@pytest.mark.parametrize(
+    ("call", "message"),
+    [
+        (
+            lambda: mo.propagate(
+                mo.System(BOX),
+                mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.0, 0.0), width=3.0),
+                1.0,
+                0.1,
+                detector=(-50.0, 10.0),
+            ),
+            "along axis 0",
+        ),
+        (
+            lambda: mo.ensemble(
+                mo.System(BOX),
+                mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.0, 0.0), width=3.0),
+                1.0,
+                0.1,
+                4,
+                spectrum=True,
+            ),
+            "no energy-resolved spectrum",
+        ),
+        (lambda: mo.System(BOX, absorber=mo.Absorber(5.0, axes=(2,))), "axis the 2D grid does not have"),
+        (lambda: mo.System(BOX, absorber=mo.Absorber(25.0, axes=(1,))), "along axis 1"),
+    ],
+)
+def test_what_a_2d_run_refuses_is_named(call, message):
+    with pytest.raises(InvalidParameterError, match=message):
+        call()
