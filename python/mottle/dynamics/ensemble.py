@@ -132,13 +132,20 @@ class EnsembleResult:
     ``step`` is the step the runs used (``duration / ceil(duration / step)``, see
     :func:`mottle.propagate`). With a spectrum, the runs warn
     (:class:`UnderResolvedWarning`) when ``T(k)`` has not settled by their end.
+
+    On a 2D/3D grid the profiles have a leading snapshot axis and then the grid's shape, ``x`` and
+    ``k`` are tuples of the axes (``k`` increasing, k = 0 at index ``N // 2``), the per-axis
+    samples (``position``, ``position_squared``, ``mean_momentum``, ``momentum_squared``) are
+    ``(count, snapshots, axes)``, ``second_moment`` is per snapshot and axis,
+    ``samples["absorbed_sides"]`` holds what the layers across axis 0 took, and
+    :meth:`radial_momentum` averages the momentum distribution over the angles.
     """
 
     count: int
     seed: int
     times: np.ndarray
-    x: np.ndarray
-    k: np.ndarray
+    x: np.ndarray | tuple[np.ndarray, ...]
+    k: np.ndarray | tuple[np.ndarray, ...]
     samples: dict
     density: np.ndarray
     density_stderr: np.ndarray

@@ -49,6 +49,15 @@ class Run:
     ``hbar k``. ``energy`` counts the static potential only (not the time-dependent terms), and a
     run with time-dependent terms or a twist has no classical trajectory (``None``; see
     :func:`mottle.standard_map` for the kicked rotor's).
+
+    On a 2D/3D grid ``psi`` has the grid's shape and ``snapshots`` and ``momentum_density`` a
+    leading snapshot axis (C order, axis 0 slowest); ``x`` and ``k`` are tuples of the axes'
+    coordinates and increasing wavenumbers (k = 0 at index ``N // 2``), ``dx`` the tuple of
+    spacings, and ``position``, ``position_squared``, ``momentum`` and ``momentum_squared`` have
+    one column per axis. ``sum momentum_density dk_0 dk_1 ... = norm``. The detector's sides are
+    the slabs ``x_0 < left`` and ``x_0 > right``; ``absorbed_sides`` is what the layers on the
+    faces across axis 0 took (0 with ``Absorber(axes=(0,))`` or in 1D). There is no classical
+    trajectory.
     """
 
     times: np.ndarray
@@ -70,12 +79,12 @@ class Run:
     transmissions: np.ndarray | None
     classical_position: np.ndarray | None
     classical_momentum: np.ndarray | None
-    x: np.ndarray
-    dx: float
+    x: np.ndarray | tuple[np.ndarray, ...]
+    dx: float | tuple[float, ...]
     step: float
     participation: np.ndarray
     momentum_density: np.ndarray
-    k: np.ndarray
+    k: np.ndarray | tuple[np.ndarray, ...]
     momentum_squared: np.ndarray | None = None
     quasimomentum: float = 0.0
     absorbed_sides: float = 0.0
@@ -505,6 +514,7 @@ def propagate(
     classical_momentum = np.where(absorbed, np.nan, out["classical_momentum"]) if classical else None
     shape = grid.shape
     snapshots_out = out["snapshots"].reshape(-1, *shape)
+    k: np.ndarray | tuple[np.ndarray, ...]
     if grid.ndim == 1:
         momentum_density = np.fft.fftshift(out["momentum_density"], axes=-1)
         k = np.fft.fftshift(np.asarray(grid.k)) + grid.shift(out["quasimomentum"])

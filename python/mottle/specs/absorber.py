@@ -98,7 +98,8 @@ class Absorber:
             return self._along(np.asarray(grid.x), grid.start, grid.stop, grid.dx, model)
         total = np.zeros(grid.shape)
         for a in self.absorbing_axes(grid):
-            profile = self._along(grid.axes[a], grid.start[a], grid.stop[a], grid.dx[a], model)
+            start, stop, dx = (np.atleast_1d(v)[a] for v in (grid.start, grid.stop, grid.dx))
+            profile = self._along(grid.axes[a], float(start), float(stop), float(dx), model)
             view = [1] * grid.ndim
             view[a] = grid.shape[a]
             total = total + profile.reshape(view)

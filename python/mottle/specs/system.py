@@ -75,8 +75,7 @@ class System:
                 )
             grid = self.grid
             for a in self.absorber.absorbing_axes(grid):
-                length = grid.length if grid.ndim == 1 else grid.length[a]
-                dx = grid.dx if grid.ndim == 1 else grid.dx[a]
+                length, dx = (float(np.atleast_1d(v)[a]) for v in (grid.length, grid.dx))
                 where = "" if grid.ndim == 1 else f" along axis {a}"
                 if self.absorber.width >= 0.5 * length:
                     raise InvalidParameterError(
@@ -118,7 +117,7 @@ class System:
         if self.absorber is None or 0 not in self.absorber.absorbing_axes(grid):
             return 0, grid.size
         x = grid.axes[0]
-        start, stop = (grid.start, grid.stop) if grid.ndim == 1 else (grid.start[0], grid.stop[0])
+        start, stop = (float(np.atleast_1d(v)[0]) for v in (grid.start, grid.stop))
         left_end = int(np.searchsorted(x, start + self.absorber.width, side="left"))
         right_start = int(np.searchsorted(x, stop - self.absorber.width, side="right"))
         transverse = grid.size // grid.shape[0]
