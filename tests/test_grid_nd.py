@@ -120,7 +120,6 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
     ("what", "call"),
     [
         ("propagate", lambda: mo.propagate(mo.System(BOX), PACKET, 1.0, 0.1)),
-        ("propagate", lambda: mo.reference.propagate(mo.System(BOX), PACKET, 1.0, 0.1)),
         ("ensemble", lambda: mo.ensemble(mo.System(BOX), PACKET, 1.0, 0.1, realizations=2)),
         ("classical_ensemble", lambda: mo.classical_ensemble(mo.System(BOX), PACKET, 1.0, 0.1, 10)),
         ("ground_state", lambda: mo.ground_state(mo.System(BOX))),

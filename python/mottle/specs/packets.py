@@ -43,43 +43,53 @@ class GaussianPacket(Kinded):
     width: float
 
     def __post_init__(self) -> None:
-        if _is_sequence(self.center) or _is_sequence(self.wavenumber):
-            self._init_box()
+        center: Any = self.center
+        wavenumber: Any = self.wavenumber
+        width: Any = self.width
+        if _is_sequence(center) or _is_sequence(wavenumber):
+            self._init_box(center, wavenumber, width)
             return
-        if _is_sequence(self.width):
+        if _is_sequence(width):
             raise InvalidParameterError(
-                f"packet width {self.width!r} has {len(self.width)} entries but the packet center "
-                f"{self.center!r} is one number: give center and wavenumber one entry per axis too"
+                f"packet width {width!r} has {len(width)} entries but the packet center "
+                f"{center!r} is one number: give center and wavenumber one entry per axis too"
             )
-        object.__setattr__(self, "center", _checks.real("packet center", self.center))
-        object.__setattr__(self, "wavenumber", _checks.real("packet wavenumber", self.wavenumber))
-        object.__setattr__(self, "width", _checks.positive("packet width", self.width))
+        object.__setattr__(self, "center", _checks.real("packet center", center))
+        object.__setattr__(self, "wavenumber", _checks.real("packet wavenumber", wavenumber))
+        object.__setattr__(self, "width", _checks.positive("packet width", width))
 
-    def _init_box(self) -> None:
+    def _init_box(self, center: Any, wavenumber: Any, width: Any) -> None:
         """A 2D/3D packet: one center, wavenumber and width per axis (a scalar width: every axis)."""
-        if not _is_sequence(self.center):
+        if not _is_sequence(center):
             raise InvalidParameterError(
-                f"packet wavenumber {self.wavenumber!r} has {len(self.wavenumber)} entries but the center "
-                f"{self.center!r} is one number: give center=(x0, y0[, z0]), one entry per axis"
+                f"packet wavenumber {wavenumber!r} has {len(wavenumber)} entries but the center "
+                f"{center!r} is one number: give center=(x0, y0[, z0]), one entry per axis"
             )
-        ndim = len(self.center)
+        ndim = len(center)
         if ndim not in (2, 3):
             raise InvalidParameterError(
-                f"packet center {tuple(self.center)!r} has {ndim} entries; a packet has 1, 2 or 3 axes "
+                f"packet center {tuple(center)!r} has {ndim} entries; a packet has 1, 2 or 3 axes "
                 "(a number, (x0, y0) or (x0, y0, z0))"
             )
-        object.__setattr__(self, "center", _axis_values("packet center", self.center, ndim, _checks.real))
+        object.__setattr__(self, "center", _axis_values("packet center", center, ndim, _checks.real))
         object.__setattr__(
-            self, "wavenumber", _axis_values("packet wavenumber", self.wavenumber, ndim, _checks.real)
+            self, "wavenumber", _axis_values("packet wavenumber", wavenumber, ndim, _checks.real)
         )
-        width = self.width if _is_sequence(self.width) else (self.width,) * ndim
-        object.__setattr__(self, "width", _axis_values("packet width", width, ndim, _checks.positive))
+        widths = width if _is_sequence(width) else (width,) * ndim
+        object.__setattr__(self, "width", _axis_values("packet width", widths, ndim, _checks.positive))
 
     @property
     def ndim(self) -> int:
         """Number of axes of the packet (1 for numbers, else the length of ``center``)."""
         center: Any = self.center
         return len(center) if isinstance(center, tuple) else 1
+
+    def per_axis(self) -> tuple[tuple[float, ...], tuple[float, ...], tuple[float, ...]]:
+        """``(center, wavenumber, width)``, each a tuple with one entry per axis (1D: 1-tuples)."""
+        parameters: Any = (self.center, self.wavenumber, self.width)
+        if self.ndim == 1:
+            parameters = tuple((value,) for value in parameters)
+        return parameters
 
     @property
     def wavenumber_spread(self) -> Any:
@@ -94,9 +104,10 @@ class GaussianPacket(Kinded):
         in 2D/3D, with ``dx`` one spacing per axis, the sum of that over the axes, each with the
         model's mass at its spacing)."""
         if self.ndim > 1:
+            _, wavenumbers, widths = self.per_axis()
             return sum(
-                model.hbar**2 / (2.0 * model.effective_mass(h)) * (k0**2 + s_k**2)
-                for h, k0, s_k in zip(dx, self.wavenumber, self.wavenumber_spread, strict=True)  # type: ignore[call-overload]
+                model.hbar**2 / (2.0 * model.effective_mass(h)) * (k0**2 + (0.5 / s) ** 2)
+                for h, k0, s in zip(dx, wavenumbers, widths, strict=True)
             )
         hbar_sq_over_2m = model.hbar**2 / (2.0 * model.effective_mass(dx))
         return hbar_sq_over_2m * (self.wavenumber**2 + self.wavenumber_spread**2)
@@ -104,65 +115,16 @@ class GaussianPacket(Kinded):
     def validate(self, grid: Grid) -> None:
         if self.ndim != grid.ndim:
             raise InvalidParameterError(_axes_mismatch(self, grid))
-        if grid.ndim > 1:
-            for a in range(grid.ndim):
-                self._validate_axis(
-                    grid.start[a],  # type: ignore[index]
-                    grid.stop[a],  # type: ignore[index]
-                    grid.length[a],  # type: ignore[index]
-                    grid.k_max[a],  # type: ignore[index]
-                    grid.points[a],  # type: ignore[index]
-                    self.center[a],  # type: ignore[index]
-                    self.wavenumber[a],  # type: ignore[index]
-                    self.width[a],  # type: ignore[index]
-                    f"[{a}] ({_along(a)})",
-                    f" along {_AXIS_NAMES[a]}",
-                )
-            return
-        self._validate_axis(
-            grid.start,
-            grid.stop,
-            grid.length,
-            grid.k_max,
-            grid.points,
-            self.center,
-            self.wavenumber,
-            self.width,
-            "",
-            "",
+        box: Any = grid
+        axes = zip(
+            *(_one_per_axis(getattr(box, name)) for name in ("start", "stop", "length", "k_max")),
+            *self.per_axis(),
+            strict=True,
         )
-
-    @staticmethod
-    def _validate_axis(start, stop, length, k_max, points, center, wavenumber, width, which, along) -> None:
-        """The checks of one axis; ``which`` (``"[1] (along y)"``) and ``along`` (``" along y"``) are
-        empty on a 1D grid, whose messages they leave as they were."""
-        if not start <= center < stop:
-            raise InvalidParameterError(
-                f"packet center{which} {center} lies outside the box{along} [{start}, {stop})"
-            )
-        if 2.0 * _TAIL * width > length:
-            raise InvalidParameterError(
-                f"packet width{which} {width} is too wide for the box of length {length}{along}: "
-                f"the packet needs {2 * _TAIL:g} widths, so use width <= {length / (2 * _TAIL):g}"
-            )
-        spread = 0.5 / width
-        reach = abs(wavenumber) + _TAIL * spread
-        if reach > k_max:
-            points_needed = math.ceil(reach * length / math.pi)
-            raise InvalidParameterError(
-                f"packet wavenumber{which} {wavenumber} with spread {spread:.4g} reaches "
-                f"|k| = {reach:.4g}, beyond the grid's largest wavenumber{along} pi/dx = {k_max:.4g}; "
-                f"use more points{along} (at least {points_needed}) or a smaller |k0|"
-            )
-        edge = (0.5 * length / width) ** 2 / 4.0
-        # 18 is (17/2)**2 / 4 rounded down: a box of 17 widths passes.
-        if edge < 18.0:
-            warnings.warn(
-                f"the packet (width{which} {width}) still has amplitude {math.exp(-edge):.1e} half a box "
-                f"away{along}; a box longer than {17 * width:g}{along} keeps it whole",
-                UnderResolvedWarning,
-                stacklevel=4,
-            )
+        for a, (start, stop, length, k_max, center, wavenumber, width) in enumerate(axes):
+            # On a 1D grid the messages name no axis (and stay as they were).
+            which, along = (f"[{a}] ({_along(a)})", f" {_along(a)}") if grid.ndim > 1 else ("", "")
+            _validate_axis(start, stop, length, k_max, center, wavenumber, width, which, along)
 
     def values(self, grid: Grid) -> np.ndarray:
         if grid.ndim > 1:
@@ -176,16 +138,50 @@ class GaussianPacket(Kinded):
         """The product over the axes of the 1D Gaussian along each, normalized on the box."""
         if self.ndim != grid.ndim:
             raise InvalidParameterError(_axes_mismatch(self, grid))
+        box: Any = grid
         psi = np.ones(grid.shape, dtype=np.complex128)
-        for a, x in enumerate(grid.axes):
-            offset = np.asarray(x) - self.center[a]  # type: ignore[index]
-            offset -= grid.length[a] * np.round(offset / grid.length[a])  # type: ignore[index]
-            factor = np.exp(
-                -np.square(offset) / (4.0 * self.width[a] ** 2)  # type: ignore[index]
-                + 1j * self.wavenumber[a] * offset  # type: ignore[index]
-            )
+        axes = zip(grid.axes, box.length, *self.per_axis(), strict=True)
+        for a, (x, length, center, wavenumber, width) in enumerate(axes):
+            offset = np.asarray(x) - center
+            offset -= length * np.round(offset / length)
+            factor = np.exp(-np.square(offset) / (4.0 * width**2) + 1j * wavenumber * offset)
             psi = psi * factor.reshape([-1 if b == a else 1 for b in range(grid.ndim)])
-        return psi / math.sqrt(np.sum(np.abs(psi) ** 2) * math.prod(grid.dx))  # type: ignore[arg-type]
+        return psi / math.sqrt(np.sum(np.abs(psi) ** 2) * math.prod(box.dx))
+
+
+def _one_per_axis(value: Any) -> tuple:
+    return value if isinstance(value, tuple) else (value,)
+
+
+def _validate_axis(start, stop, length, k_max, center, wavenumber, width, which, along) -> None:
+    """A packet's checks along one axis; ``which`` (``"[1] (along y)"``) and ``along``
+    (``" along y"``) are empty on a 1D grid."""
+    if not start <= center < stop:
+        raise InvalidParameterError(
+            f"packet center{which} {center} lies outside the box{along} [{start}, {stop})"
+        )
+    if 2.0 * _TAIL * width > length:
+        raise InvalidParameterError(
+            f"packet width{which} {width} is too wide for the box of length {length}{along}: "
+            f"the packet needs {2 * _TAIL:g} widths, so use width <= {length / (2 * _TAIL):g}"
+        )
+    spread = 0.5 / width
+    reach = abs(wavenumber) + _TAIL * spread
+    if reach > k_max:
+        raise InvalidParameterError(
+            f"packet wavenumber{which} {wavenumber} with spread {spread:.4g} reaches "
+            f"|k| = {reach:.4g}, beyond the grid's largest wavenumber{along} pi/dx = {k_max:.4g}; "
+            f"use more points{along} (at least {math.ceil(reach * length / math.pi)}) or a smaller |k0|"
+        )
+    edge = (0.5 * length / width) ** 2 / 4.0
+    # 18 is (17/2)**2 / 4 rounded down: a box of 17 widths passes.
+    if edge < 18.0:
+        warnings.warn(
+            f"the packet (width{which} {width}) still has amplitude {math.exp(-edge):.1e} half a box "
+            f"away{along}; a box longer than {17 * width:g}{along} keeps it whole",
+            UnderResolvedWarning,
+            stacklevel=4,  # the caller of the caller of validate, as before the N-d work
+        )
 
 
 def _is_sequence(value) -> bool:
@@ -276,7 +272,8 @@ class Wavefunction:
 
     def values(self, grid: Grid) -> np.ndarray:
         if grid.ndim > 1:
-            volume = math.prod(grid.dx)  # type: ignore[arg-type]
+            box: Any = grid
+            volume = math.prod(box.dx)
             return self.table / math.sqrt(np.sum(np.abs(self.table) ** 2) * volume)
         return self.table / math.sqrt(np.sum(np.abs(self.table) ** 2) * grid.dx)
 

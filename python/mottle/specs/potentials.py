@@ -165,7 +165,7 @@ class Harmonic(Potential):
             if isinstance(value, tuple) and len(value) != grid.ndim:
                 raise InvalidParameterError(
                     f"Harmonic {name} {value!r} has {len(value)} entries but the grid has {grid.ndim} "
-                    f"axis{'es' if grid.ndim > 1 else ''} (shape {grid.shape}): give "
+                    f"{'axes' if grid.ndim > 1 else 'axis'} (shape {grid.shape}): give "
                     + ("one number" if grid.ndim == 1 else f"{grid.ndim} entries or one number")
                 )
 
