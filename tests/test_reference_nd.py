@@ -145,10 +145,11 @@ def test_on_a_1d_grid_it_is_the_1d_reference(splitting):
     "model", [mo.Continuum(0.7, 1.3), mo.Lattice(hopping=0.8, hbar=1.1)], ids=["continuum", "lattice"]
 )
 def test_a_nonlinear_plane_wave_turns_at_its_chemical_potential(model):
-    # A plane wave exp(i k.x) / sqrt(area) is a stationary state of the cubic Schrodinger equation
-    # with hbar w = T(k) + g |psi|**2 (the uniform gas's mu = g n: Pitaevskii & Stringari (2003),
-    # ch. 5); T(k) = hbar**2 |k|**2 / 2m, or -2 J sum_a cos(k_a a) on the square lattice (Ashcroft &
-    # Mermin (1976), ch. 10). Both factors of the split step are exact on it, so only rounding is left.
+    # A plane wave A exp(i k.x) put into i hbar psi_t = T psi + g |psi|**2 psi turns at
+    # hbar w = T(k) + g |A|**2 (substituted here; the uniform gas's mu = g n, Pitaevskii & Stringari
+    # (2003)), |A|**2 = 1/area; T(k) = hbar**2 |k|**2 / 2m, or -2 J sum_a cos(k_a a) on the square
+    # lattice (Ashcroft & Mermin (1976), ch. 10). Both factors of the split step are exact on it,
+    # so only rounding is left.
     grid = mo.Grid(points=(32, 48), length=(16.0, 24.0))
     k = (2 * np.pi * 3 / 16.0, -2 * np.pi * 5 / 24.0)
     x, y = np.meshgrid(*grid.axes, indexing="ij")
