@@ -97,7 +97,13 @@ def threads(value: object) -> int:
 
 
 # What already works on 2D and 3D grids; the one message below names them, so a refusal says where to go.
-ND_SUPPORTED: tuple[str, ...] = ("mottle.Grid",)
+ND_SUPPORTED: tuple[str, ...] = (
+    "mottle.Grid",
+    "GaussianPacket, Wavefunction, PacketList",
+    "the static potentials (Barrier, Harmonic, Tabulated, Cosine)",
+    "System.static_potential",
+    "mottle.reference.propagate",
+)
 
 
 def one_dimensional(what: str, grid: Any) -> None:

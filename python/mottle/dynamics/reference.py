@@ -50,6 +50,7 @@ from __future__ import annotations
 import copy
 import math
 from collections.abc import Callable
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -58,6 +59,9 @@ from ..errors import InvalidParameterError
 from ..specs.models import Continuum
 from ..specs.system import System
 from .propagate import Run, check_system, initial_phase_space, prepare_single_run
+
+if TYPE_CHECKING:
+    from .reference_nd import BoxRun
 
 
 def _strang() -> tuple[list[float], list[float]]:
@@ -399,12 +403,26 @@ def propagate(
     seed: int = 0,
     index: int = 0,
     classical: bool = True,
-) -> Run:
+) -> Run | BoxRun:
     """Propagate ``packet`` in ``system`` like :func:`mottle.propagate`, in plain numpy.
 
     Same arguments, validation and :class:`mottle.Run` fields as the core's
     (double precision only); see the module docstring for the conventions.
+
+    On a 2D or 3D grid this is :func:`mottle.dynamics.reference_nd.propagate`, which returns a
+    :class:`~mottle.dynamics.reference_nd.BoxRun` (no detector, no classical particle there:
+    ``detector`` must be None and ``classical`` is ignored).
     """
+    if isinstance(system, System) and system.grid.ndim > 1:
+        from . import reference_nd
+
+        if detector is not None:
+            raise InvalidParameterError(
+                f"detector {detector!r}: a detector is 1D only for now (use detector=None on a 2D/3D grid)"
+            )
+        return reference_nd.propagate(
+            system, packet, duration, step, order, snapshots, splitting, seed=seed, index=index
+        )
     packet, arguments, potential = prepare_single_run(
         system, packet, duration, step, order, seed, index, snapshots, detector, splitting
     )

@@ -175,6 +175,17 @@ def _per_axis(name: str, value: Any, ndim: int, check) -> tuple:
     return tuple(check(f"{name}[{a}] ({_axis(a)})", v) for a, v in enumerate(values))
 
 
+def shape_mismatch(have: tuple[int, ...], need: tuple[int, ...]) -> str:
+    """`` (axis 1, along y, has 16 points, not 32)`` for the first axis where an array's shape
+    differs from the grid's (or the count of axes; ``""`` when they agree)."""
+    if len(have) != len(need):
+        return f" ({len(have)} axes, not {len(need)})"
+    for a, (h, n) in enumerate(zip(have, need, strict=True)):
+        if h != n:
+            return f" (axis {a}, {_axis(a)}, has {h} points, not {n})"
+    return ""
+
+
 @dataclass(frozen=True, repr=False)
 class _BoxGrid(Grid):
     """A 2D or 3D periodic box; made by ``Grid(points=(Nx, Ny[, Nz]), ...)`` (see :class:`Grid`)."""

@@ -4,6 +4,13 @@ Each is evaluated on a grid by :meth:`values`. A barrier's value at a point is
 its height times the fraction of the point's cell ``[x - dx/2, x + dx/2)``
 that it covers, so that its area (height x width) is exact on any grid; this
 makes the transmission converge smoothly as the grid is refined.
+
+On a 2D or 3D grid :meth:`values` is an array of the grid's shape (axis 0
+first, C order). A :class:`Barrier` is then a slab across axis 0 (the same at
+every transverse position), a :class:`Cosine` a standing wave along axis 0, a
+:class:`Harmonic` well takes one frequency and centre per axis (or one for
+every axis) and a :class:`Tabulated` table the grid's shape; the time-dependent
+terms are 1D only so far.
 """
 
 from __future__ import annotations
@@ -16,7 +23,8 @@ import numpy as np
 
 from .. import _checks
 from ..errors import InvalidParameterError, InvalidTypeError
-from .grid import Grid
+from .grid import Grid, shape_mismatch
+from .grid import _axis as _along
 from .kinds import Kinded
 from .models import Continuum, Lattice
 from .packets import is_drawn
@@ -56,7 +64,7 @@ class PotentialSum(Potential):
     terms: tuple[Potential, ...]
 
     def values(self, grid, model):
-        return sum((term.values(grid, model) for term in self.terms), np.zeros(grid.points))
+        return sum((term.values(grid, model) for term in self.terms), np.zeros(grid.shape))
 
     def validate(self, grid):
         for term in self.terms:
@@ -65,7 +73,10 @@ class PotentialSum(Potential):
 
 @dataclass(frozen=True)
 class Barrier(Potential):
-    """A rectangular barrier (or well, if ``height < 0``) of ``height`` on ``[left, right)``."""
+    """A rectangular barrier (or well, if ``height < 0``) of ``height`` on ``[left, right)``.
+
+    On a 2D/3D grid it is a slab: ``left <= x < right`` along axis 0, the same at every
+    transverse position (each cell covered in part along axis 0 as in 1D)."""
 
     kind = "barrier"
 
@@ -83,21 +94,37 @@ class Barrier(Potential):
         object.__setattr__(self, "right", right)
 
     def values(self, grid, model):
-        lower = grid.x - 0.5 * grid.dx
-        upper = grid.x + 0.5 * grid.dx
+        if grid.ndim > 1:
+            profile = self._profile(grid.axes[0], grid.dx[0])
+            return np.broadcast_to(profile.reshape((-1,) + (1,) * (grid.ndim - 1)), grid.shape).copy()
+        return self._profile(grid.x, grid.dx)
+
+    def _profile(self, x, dx):
+        lower = x - 0.5 * dx
+        upper = x + 0.5 * dx
         covered = np.clip(np.minimum(upper, self.right) - np.maximum(lower, self.left), 0.0, None)
-        return self.height * covered / grid.dx
+        return self.height * covered / dx
 
     def validate(self, grid):
-        if self.right <= grid.start or self.left >= grid.stop:
+        if grid.ndim > 1:
+            start, stop, along = grid.start[0], grid.stop[0], " along x (axis 0, across which it is a slab)"
+        else:
+            start, stop, along = grid.start, grid.stop, ""
+        if self.right <= start or self.left >= stop:
             raise InvalidParameterError(
-                f"barrier [{self.left}, {self.right}) lies outside the box [{grid.start}, {grid.stop})"
+                f"barrier [{self.left}, {self.right}) lies outside the box{along} [{start}, {stop})"
             )
 
 
 @dataclass(frozen=True)
 class Harmonic(Potential):
-    """``(1/2) mass frequency**2 (x - center)**2`` (lattice: the band-bottom mass)."""
+    """``(1/2) mass frequency**2 (x - center)**2`` (lattice: the band-bottom mass).
+
+    On a 2D/3D grid ``V = (1/2) sum_a mass_a frequency_a**2 (x_a - center_a)**2``:
+    ``frequency`` and ``center`` are tuples with one entry per axis, or one number for
+    every axis (an isotropic well); ``mass_a`` is the model's mass at the spacing along
+    ``a`` (the continuum's mass; the lattice's band-bottom mass ``hbar**2 / (2 J dx_a**2)``).
+    """
 
     kind = "harmonic"
 
@@ -105,17 +132,52 @@ class Harmonic(Potential):
     center: float = 0.0
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "frequency", _checks.positive("frequency", self.frequency))
-        object.__setattr__(self, "center", _checks.real("center", self.center))
+        for name, check in (("frequency", _checks.positive), ("center", _checks.real)):
+            value = getattr(self, name)
+            if isinstance(value, (tuple, list, np.ndarray)):
+                checked = tuple(value)
+                if len(checked) not in (2, 3):
+                    raise InvalidParameterError(
+                        f"Harmonic {name} {checked!r} has {len(checked)} entries: give one number, or one "
+                        "per axis of a 2D or 3D grid (2 or 3 entries)"
+                    )
+                checked = tuple(check(f"{name}[{a}] ({_along(a)})", v) for a, v in enumerate(checked))
+                object.__setattr__(self, name, checked)
+            else:
+                object.__setattr__(self, name, check(name, value))
 
     def values(self, grid, model):
+        if grid.ndim > 1:
+            self.validate(grid)
+            frequency, center = _every_axis(self.frequency, grid.ndim), _every_axis(self.center, grid.ndim)
+            total = np.zeros(grid.shape)
+            for a, (x, dx) in enumerate(zip(grid.axes, grid.dx, strict=True)):
+                mass = model.effective_mass(dx)
+                along = 0.5 * mass * frequency[a] ** 2 * np.square(x - center[a])
+                total = total + along.reshape([-1 if b == a else 1 for b in range(grid.ndim)])
+            return total
         mass = model.effective_mass(grid.dx)
         return 0.5 * mass * self.frequency**2 * np.square(grid.x - self.center)
+
+    def validate(self, grid):
+        for name in ("frequency", "center"):
+            value = getattr(self, name)
+            if isinstance(value, tuple) and len(value) != grid.ndim:
+                raise InvalidParameterError(
+                    f"Harmonic {name} {value!r} has {len(value)} entries but the grid has {grid.ndim} "
+                    f"{'axes' if grid.ndim > 1 else 'axis'} (shape {grid.shape}): give "
+                    + ("one number" if grid.ndim == 1 else f"{grid.ndim} entries or one number")
+                )
+
+
+def _every_axis(value, ndim: int) -> tuple[float, ...]:
+    return tuple(value) if isinstance(value, tuple) else (value,) * ndim
 
 
 @dataclass(frozen=True, eq=False)
 class Tabulated(Potential):
-    """Potential values given at the grid points (an array of shape ``(points,)``)."""
+    """Potential values given at the grid points (an array of the grid's shape: ``(points,)``,
+    or ``(Nx, Ny[, Nz])`` on a 2D/3D grid, axis 0 first)."""
 
     kind = "tabulated"
 
@@ -125,8 +187,10 @@ class Tabulated(Potential):
         if isinstance(values, (str, bytes)):
             raise InvalidTypeError(f"Tabulated values must be an array of numbers, got {values!r}")
         array = np.asarray(values)
-        if array.ndim != 1:
-            raise InvalidParameterError(f"Tabulated values must be one-dimensional, got shape {array.shape}")
+        if array.ndim not in (1, 2, 3):
+            raise InvalidParameterError(
+                f"Tabulated values must have 1, 2 or 3 axes (the grid's shape), got shape {array.shape}"
+            )
         object.__setattr__(self, "table", _checks.real_array("Tabulated values", array, array.shape))
 
     def values(self, grid, model):
@@ -138,9 +202,16 @@ class Tabulated(Potential):
         return cls(tables[entry["values"]["sha256"]])
 
     def validate(self, grid):
-        if self.table.shape != (grid.points,):
+        if grid.ndim == 1:
+            if self.table.shape != (grid.points,):
+                raise InvalidParameterError(
+                    f"Tabulated values have shape {self.table.shape}; the grid needs ({grid.points},)"
+                )
+            return
+        if self.table.shape != grid.shape:
             raise InvalidParameterError(
-                f"Tabulated values have shape {self.table.shape}; the grid needs ({grid.points},)"
+                f"Tabulated values have shape {self.table.shape}; the grid needs {grid.shape}"
+                + shape_mismatch(self.table.shape, grid.shape)
             )
 
 
@@ -157,7 +228,9 @@ class Cosine(Potential):
     the cosine is the profile of a time-dependent term (:class:`Kicked`,
     :class:`Modulated`, :class:`Switched`); a static cosine takes a number.
     On a periodic grid the cosine is periodic only when ``wavenumber * length``
-    is a multiple of ``2 pi``; otherwise it jumps where the box wraps.
+    is a multiple of ``2 pi``; otherwise it jumps where the box wraps. On a 2D/3D
+    grid it is a standing wave along axis 0 (``x`` the coordinate along axis 0),
+    the same at every transverse position.
     """
 
     kind = "cosine"
@@ -177,6 +250,9 @@ class Cosine(Potential):
                 f"Cosine phase {self.phase!r} is drawn per realization: use a number, or make the cosine "
                 "the profile of Kicked, Modulated or Switched"
             )
+        if grid.ndim > 1:
+            wave = self.amplitude * np.cos(self.wavenumber * grid.axes[0] + float(self.phase))
+            return np.broadcast_to(wave.reshape((-1,) + (1,) * (grid.ndim - 1)), grid.shape).copy()
         return self.amplitude * np.cos(self.wavenumber * grid.x + float(self.phase))
 
     def validate(self, grid):
@@ -214,7 +290,7 @@ class TimeDependent(Potential):
             )
 
     def values(self, grid, model):
-        return np.zeros(grid.points)
+        return np.zeros(grid.shape)
 
     def profile(self, grid, model) -> np.ndarray:
         """``V(x)`` at the grid points (a drawn cosine phase is taken as its mean here)."""
@@ -241,6 +317,7 @@ class TimeDependent(Potential):
         return _requests.table_profile(self.profile(grid, model))
 
     def validate(self, grid):
+        _checks.one_dimensional(f"the time-dependent {type(self).__name__} term", grid)
         for term in _terms(self._shape()):
             if isinstance(term, Cosine):
                 continue

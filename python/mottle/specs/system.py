@@ -12,7 +12,7 @@ from .absorber import Absorber
 from .disorder import BoxDisorder, Disorder
 from .grid import Grid
 from .models import Continuum, Lattice
-from .potentials import Potential, _terms
+from .potentials import Potential
 
 
 @dataclass(frozen=True, eq=False)
@@ -49,9 +49,7 @@ class System:
                 f"model must be mottle.Continuum or mottle.Lattice, got {type(self.model).__name__}"
             )
         if self.potential is not None:
-            if isinstance(self.potential, Potential):
-                for term in _terms(self.potential):
-                    _checks.one_dimensional(f"the {type(term).__name__} potential", self.grid)
+            # On 2D/3D grids each term checks itself (a time-dependent one refuses them so far).
             if not isinstance(self.potential, Potential):
                 raise InvalidTypeError(
                     f"potential must be a mottle potential (Barrier, Harmonic, Tabulated or a sum), "
@@ -95,14 +93,26 @@ class System:
         return self.model.hbar
 
     def static_potential(self) -> np.ndarray:
-        """The deterministic part of the potential at the grid points."""
+        """The deterministic part of the potential at the grid points (an array of the grid's
+        shape, zeros without a potential)."""
         if self.potential is None:
-            return np.zeros(self.grid.points)
+            return np.zeros(self.grid.shape)
         return np.asarray(self.potential.values(self.grid, self.model), dtype=float)
 
     def kinetic_table(self) -> np.ndarray:
-        """Kinetic energy at the grid's wavenumbers, in FFT order."""
-        return np.asarray(self.model.kinetic(self.grid.k, self.grid.dx), dtype=float)
+        """Kinetic energy at the grid's wavenumbers, in FFT order.
+
+        On a 2D/3D grid an array of the grid's shape, ``T(k) = sum_a T_a(k_a)``: each axis the
+        model's 1D dispersion at its spacing (continuum ``hbar**2 |k|**2 / 2m``; lattice
+        ``-2 J sum_a cos(k_a dx_a)``, the square/cubic tight-binding band)."""
+        grid = self.grid
+        if grid.ndim > 1:
+            table = np.zeros(grid.shape)
+            for a, (k, dx) in enumerate(zip(grid.k, grid.dx, strict=True)):  # type: ignore[call-overload]
+                along = np.asarray(self.model.kinetic(k, dx), dtype=float)
+                table = table + along.reshape([-1 if b == a else 1 for b in range(grid.ndim)])
+            return table
+        return np.asarray(self.model.kinetic(grid.k, grid.dx), dtype=float)
 
     def absorption(self) -> np.ndarray:
         """``W(x) >= 0`` at the grid points, flat in C order (zeros without absorbers)."""
