@@ -78,11 +78,22 @@ def warn_if_coarse(system, packet, step: float, potential: np.ndarray) -> None:
             UnderResolvedWarning,
             stacklevel=4,
         )
-    span = float(np.ptp(potential)) if potential.size else 0.0
+    if not potential.size:
+        return
+    # As in 1D: only the potential the packet can reach counts, clipped at four times the energy
+    # it carries above the floor (a harmonic well's walls far beyond the turning points do not).
+    density = np.abs(packet.values(grid)) ** 2
+    support = density > 1e-10 * density.max()
+    kinetic = sum(
+        float(model.kinetic(band, grid.dx[a]) - model.kinetic(0.0, grid.dx[a])) for a, band in enumerate(bands)
+    )
+    floor = float(np.min(potential))
+    gain = max(kinetic + float(np.max(potential[support])) - floor, 0.0)
+    span = float(np.max(np.minimum(potential, floor + 4.0 * gain)) - floor)
     if span * step / hbar > limits.PHASE_PER_STEP:
         warnings.warn(
             f"step {step} is too coarse: the potential phase per step reaches {span * step / hbar:.3g} "
-            f"rad across the potential's range {span:.3g} (keep it below pi: step <= "
+            f"rad across the potential's range {span:.3g} that the packet feels (keep it below pi: step <= "
             f"{hbar * limits.PHASE_PER_STEP / span:.3g})",
             UnderResolvedWarning,
             stacklevel=4,
