@@ -562,16 +562,15 @@ impl<'a, T: Real> Stepper<'a, T> {
     fn apply_kinetic(&mut self, psi: &mut [Complex<T>], table: usize) {
         // Out of place there and back: rustfft's in-place transforms of these
         // sizes go through a copy, which this saves. In 2D/3D the spectrum
-        // stays in the step layout, where the factors are.
-        let transforms = &self.shared.transforms;
-        let spectrum = &mut self.spectrum[..];
-        transforms.forward(psi, spectrum, &mut self.scratch);
+        // stays in the step layout, where the factors are, and the last axis is
+        // transformed, multiplied and transformed back one row at a time.
         let factors = match &self.twist {
             Some(twist) => &twist.factors[table],
             None => &self.shared.kinetic_factors[table],
         };
-        T::multiply(spectrum, factors);
-        transforms.inverse(spectrum, psi, &mut self.scratch);
+        self.shared
+            .transforms
+            .kinetic(psi, &mut self.spectrum, factors, &mut self.scratch);
     }
 
     /// Advance `steps` whole steps from a paused state (every factor applied)
