@@ -156,6 +156,8 @@ class Harmonic(Potential):
                 along = 0.5 * mass * frequency[a] ** 2 * np.square(x - center[a])
                 total = total + along.reshape([-1 if b == a else 1 for b in range(grid.ndim)])
             return total
+        if isinstance(self.frequency, tuple) or isinstance(self.center, tuple):
+            self.validate(grid)  # one entry per axis on a 1D grid: refused, naming it
         mass = model.effective_mass(grid.dx)
         return 0.5 * mass * self.frequency**2 * np.square(grid.x - self.center)
 
