@@ -454,7 +454,11 @@ def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) ->
     fits = localization_fits(store, table) if fits is None else fits
     if fits:
         out.append(("log_transmission_vs_length.png", log_transmission_figure(store, fits)))
-    if len(_Profiles(store).axis(0, "time")):
+    from .report_nd import box_figures, is_box  # 2D/3D studies: images and radial profiles
+
+    if is_box(store):
+        out += box_figures(store)
+    elif len(_Profiles(store).axis(0, "time")):
         out.append(("density.png", density_figure(store)))
         out.append(("momentum.png", momentum_figure(store)))
     from .report_drive import drive_figures  # driven studies: <p^2>, momentum tails

@@ -62,7 +62,9 @@ class Kinded:
             if field.key not in entry:
                 continue
             value = entry[field.key]
-            if field.type == "potential":
+            if isinstance(value, list) and field.type in ("number", "distribution"):
+                value = tuple(value)  # one per axis of a 2D/3D grid
+            elif field.type == "potential":
                 value = potential(value, tables)
             elif field.type == "distribution":
                 value = distribution(value)

@@ -128,7 +128,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "spectrum": Key(BOOLEAN),
     },
 }
-ABSORBER_KEYS = {"width": Key(NUMBER, required=True), "strength": Key(NUMBER)}
+ABSORBER_KEYS = {"width": Key(NUMBER, required=True), "strength": Key(NUMBER), "axes": Key(NUMBERS)}
 RANGE_KEYS = ("start", "stop", "count", "scale")
 # Tables of [sweep] that are not swept paths: zipped groups and explicit points.
 SWEEP_GROUPS = ("zip", "points")
@@ -221,12 +221,36 @@ def _did_you_mean(name: str, known) -> str:
 # --------------------------------------------------------------------------- types
 
 
-def _type_problem(key: Key, value: object) -> str | None:
-    """Why ``value`` cannot be the value of ``key`` (None when its type fits)."""
+# On a 2D or 3D grid a number of [system] or [packet] (and of their entries) may be given per axis.
+PER_AXIS_SECTIONS = ("system", "packet")
+AXES = (2, 3)
+
+
+def _per_axis(value: object, integer: bool = False) -> bool:
+    """Whether ``value`` is a list of one number (an integer) per axis of a 2D or 3D grid."""
+    return (
+        isinstance(value, list)
+        and len(value) in AXES
+        and all(
+            isinstance(v, int if integer else (int, float)) and not isinstance(v, bool) for v in value
+        )
+    )
+
+
+def _type_problem(key: Key, value: object, per_axis: bool = False) -> str | None:
+    """Why ``value`` cannot be the value of ``key`` (None when its type fits). With ``per_axis``
+    a number (integer, distribution) may be a list of one per axis (see :data:`PER_AXIS_SECTIONS`)."""
 
     def is_number(v):
         return isinstance(v, (int, float)) and not isinstance(v, bool)
 
+    if per_axis and key.kind in (NUMBER, DISTRIBUTION) and _per_axis(value):
+        return None
+    if per_axis and key.kind == INTEGER and _per_axis(value, integer=True):
+        return None
+    if per_axis and key.kind in (NUMBER, INTEGER, DISTRIBUTION) and isinstance(value, list):
+        what = "an integer" if key.kind == INTEGER else "a number"
+        return f"must be {what} or a list of one per axis (2 or 3 of them), got {_describe(value)}"
     got = f"got {_describe(value)}"
     if key.kind == NUMBER and not is_number(value):
         return f"must be a number, {got}"
@@ -295,6 +319,10 @@ def _describe(value: object) -> str:
 
 def _normalize(key: Key, value: Any) -> object:
     """The canonical form of a value that passed its type check: floats for numbers, ints for integers."""
+    if key.kind in (NUMBER, DISTRIBUTION) and isinstance(value, list):
+        return [float(v) for v in value]  # one per axis
+    if key.kind == INTEGER and isinstance(value, list):
+        return [int(v) for v in value]
     if key.kind == NUMBER:
         return float(value)
     if key.kind == INTEGER:
@@ -322,7 +350,7 @@ def _check_table(table: dict, spec: dict[str, Key], path: tuple[str, ...], probl
         if name not in spec:
             problems.add((*path, name), f"unknown key{_did_you_mean(name, spec)}")
             continue
-        why = _type_problem(spec[name], value)
+        why = _type_problem(spec[name], value, per_axis=path[0] in PER_AXIS_SECTIONS)
         if why:
             problems.add((*path, name), why)
             continue

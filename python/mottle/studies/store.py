@@ -206,7 +206,9 @@ def _columns_block(columns: Mapping[str, Any], dtypes: Mapping[str, Any]) -> tup
 def _layout(arrays: Mapping[str, np.ndarray]) -> str:
     """A short fingerprint of a point's axes (times, x, k): points with one layout share profiles' dims."""
     digest = hashlib.sha256()
-    for name in ("times", "x", "k"):
+    # On a 2D/3D grid the axes are x/0, x/1, ... and k/0, k/1, ...
+    axes = sorted(name for name in arrays if name.startswith(("x/", "k/")))
+    for name in ("times", "x", "k", *axes):
         value = np.asarray(arrays.get(name, np.zeros(0)))
         digest.update(f"{name}:{value.dtype.str}:{value.shape}".encode())
         digest.update(np.ascontiguousarray(value).tobytes())
@@ -556,13 +558,29 @@ class Store:
         attrs = {"title": self.title, "store": str(self.path), "points_total": total}
         first = self._point(0).arrays() if len(layouts) == 1 and c["n"] else {}
         if first and first["times"].size:
-            times, x, k = first["times"], first["x"], first["k"]
-            coords.update({"time": times, "x": x, "k": k})
+            times = first["times"]
+            if "x" in first:
+                coords.update({"time": times, "x": first["x"], "k": first["k"]})
+                spatial, spectral, per_axis = ("x",), ("k",), ()
+            else:  # a 2D/3D grid: one coordinate per axis, x_0, x_1, ... and k_0, k_1, ...
+                ndim = sum(1 for name in first if name.startswith("x/"))
+                spatial = tuple(f"x_{a}" for a in range(ndim))
+                spectral = tuple(f"k_{a}" for a in range(ndim))
+                per_axis = ("axis",)
+                coords["time"] = times
+                coords.update({f"x_{a}": first[f"x/{a}"] for a in range(ndim)})
+                coords.update({f"k_{a}": first[f"k/{a}"] for a in range(ndim)})
+                coords["axis"] = np.arange(ndim)
+            sizes = {name: np.asarray(value).size for name, value in coords.items()}
             positions = np.full(total, -1, dtype=np.int64)
             positions[stored] = np.arange(c["n"])
             for name, extra, getter in _PROFILES:
-                axes = {"time": times.size, "x": x.size, "k": k.size}
-                lazy = _LazyProfiles(self, positions.reshape(shape), tuple(axes[a] for a in extra), getter)
+                extra = tuple(
+                    axis
+                    for part in extra
+                    for axis in {"x": spatial, "k": spectral, "time": ("time",)}[part]
+                ) + (per_axis if name in _PER_AXIS_PROFILES else ())
+                lazy = _LazyProfiles(self, positions.reshape(shape), tuple(sizes[a] for a in extra), getter)
                 variables[name] = (dims + list(extra), _lazily(lazy))
         elif len(layouts) > 1:
             attrs["profiles"] = "left out: the points differ in grid or snapshots"
@@ -654,6 +672,8 @@ def _second_moment(arrays):
     return np.mean(arrays["samples/position_squared"] - arrays["samples/position"] ** 2, axis=0)
 
 
+# Profiles with one value per axis on a 2D/3D grid (a trailing "axis" dimension there).
+_PER_AXIS_PROFILES = ("position", "second_moment")
 _PROFILES = (
     ("density", ("time", "x"), lambda a: a["density"]),
     ("density_stderr", ("time", "x"), lambda a: a["density_stderr"]),

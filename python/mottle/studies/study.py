@@ -146,7 +146,10 @@ def build_system(resolved: Mapping, tables: Mapping[str, np.ndarray]):
     absorber = None
     if "absorber" in system:
         spec = system["absorber"]
-        absorber = _in(("system", "absorber"), lambda: Absorber(spec["width"], spec.get("strength")), spec)
+        axes = None if spec.get("axes") is None else tuple(int(a) if a == int(a) else a for a in spec["axes"])
+        absorber = _in(
+            ("system", "absorber"), lambda: Absorber(spec["width"], spec.get("strength"), axes), spec
+        )
     return _in(
         ("system",),
         lambda: System(
