@@ -571,7 +571,8 @@ class Store:
                 coords.update({f"x_{a}": first[f"x/{a}"] for a in range(ndim)})
                 coords.update({f"k_{a}": first[f"k/{a}"] for a in range(ndim)})
                 coords["axis"] = np.arange(ndim)
-            sizes = {name: np.asarray(value).size for name, value in coords.items()}
+            profile_axes = ("time", *spatial, *spectral, *per_axis)
+            sizes = {name: np.asarray(coords[name]).size for name in profile_axes}
             positions = np.full(total, -1, dtype=np.int64)
             positions[stored] = np.arange(c["n"])
             for name, extra, getter in _PROFILES:
