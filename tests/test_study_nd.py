@@ -1,0 +1,118 @@
+"""Studies on a 2D grid: the study file's per-axis values, in process and on a Dask cluster with the
+same numbers, the labelled dataset, and the report's images of the stored numbers."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import mottle as mo
+from mottle.cli import report as reports
+from mottle.cli import report_nd
+from mottle.studies.study import StudyError, parse_study
+
+SLAB = """\
+[study]
+title = "a packet through a 2D slab"
+
+[system]
+points = [96, 64]
+length = [80.0, 56.0]
+absorber = { width = 10.0, axes = [0] }
+
+[[system.potential]]
+kind = "barrier"
+height = 0.4
+left = 0.0
+right = 2.0
+
+[packet]
+center = [-15.0, 0.0]
+wavenumber = [1.0, 0.2]
+width = [4.0, 3.0]
+
+[run]
+duration = 12.0
+step = 0.05
+realizations = 32
+snapshots = [6.0, 12.0]
+detector = [-5.0, 5.0]
+
+[sweep]
+"system.potential.0.height" = [0.2, 0.4]
+"""
+
+
+@pytest.fixture(scope="module")
+def in_process(tmp_path_factory):
+    root = tmp_path_factory.mktemp("slab")
+    return mo.run_study(parse_study(SLAB, "slab.toml"), root / "slab.mottle", progress=False, threads=2)
+
+
+def test_a_2d_study_stores_what_the_api_computes(in_process):
+    store = in_process
+    assert store.complete and len(store.points) == 2
+    point = store.points[1]
+    system = mo.System(
+        mo.Grid(points=(96, 64), length=(80.0, 56.0)),
+        potential=mo.Barrier(0.4, 0.0, 2.0),
+        absorber=mo.Absorber(10.0, axes=(0,)),
+    )
+    packet = mo.GaussianPacket(center=(-15.0, 0.0), wavenumber=(1.0, 0.2), width=(4.0, 3.0))
+    direct = mo.ensemble(
+        system, packet, 12.0, 0.05, 32, seed=point.seed, snapshots=[6.0, 12.0], detector=(-5.0, 5.0)
+    )
+    stored, computed = point.result.to_arrays(), direct.to_arrays()
+    assert stored.keys() == computed.keys()
+    for name in stored:
+        assert np.array_equal(stored[name], computed[name], equal_nan=True), name
+    # The barrier reflects: more at the higher one.
+    assert store.points[1].result.reflection.mean > store.points[0].result.reflection.mean > 0.0
+
+
+def test_the_dataset_of_a_2d_study_has_one_coordinate_per_axis(in_process):
+    ds = in_process.dataset()
+    assert ds.density.dims == ("height", "time", "x_0", "x_1")
+    assert ds.momentum.dims == ("height", "time", "k_0", "k_1")
+    assert ds.second_moment.dims == ("height", "time", "axis")
+    result = in_process.points[0].result
+    assert np.array_equal(ds.density.sel(height=0.2).values, result.density)
+    assert np.array_equal(ds.x_1.values, result.x[1]) and np.array_equal(ds.k_0.values, result.k[0])
+
+
+def test_a_dask_cluster_gives_the_same_numbers_in_2d(in_process, tmp_path):
+    store = mo.run_study(
+        parse_study(SLAB, "slab.toml"), tmp_path / "cluster.mottle", workers=2, progress=False
+    )
+    for ours, theirs in zip(in_process.points, store.points, strict=True):
+        a, b = ours.result.to_arrays(), theirs.result.to_arrays()
+        for name in a:
+            assert np.array_equal(a[name], b[name], equal_nan=True), name
+
+
+def test_the_report_draws_images_of_the_stored_numbers(in_process, tmp_path):
+    written = reports.report(in_process, tmp_path / "figures")
+    names = {path.name for path in written.files}
+    assert {"density.png", "momentum.png", "radial_momentum.png"} <= names
+    figure = report_nd.density_image_figure(in_process)
+    image = figure.axes[0].images[0].get_array()
+    assert np.array_equal(np.asarray(image), in_process.points[0].result.density[0].T)
+    radial = report_nd.radial_momentum_figure(in_process)
+    line = radial.axes[0].lines[1]
+    q, n = in_process.points[1].result.radial_momentum()
+    assert np.array_equal(line.get_ydata(), n[-1]) and np.array_equal(line.get_xdata(), q)
+
+
+@pytest.mark.parametrize(
+    ("change", "message"),
+    [
+        (("points = [96, 64]", "points = [96, 64, 8, 8]"), r"one per axis \(2 or 3 of them\)"),
+        (("wavenumber = [1.0, 0.2]", 'wavenumber = [1.0, "y"]'), "one per axis"),
+        (("axes = [0]", "axes = [3]"), "axis the 2D grid does not have"),
+        (("center = [-15.0, 0.0]", "center = [-15.0, 0.0, 1.0]"), "packet"),
+    ],
+)
+def test_bad_per_axis_values_are_refused_with_their_line(change, message):
+    with pytest.raises(StudyError, match=message) as error:
+        parse_study(SLAB.replace(*change), "slab.toml")
+    assert "slab.toml:" in str(error.value)
