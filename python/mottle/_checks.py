@@ -97,7 +97,7 @@ def threads(value: object) -> int:
 
 
 # What already works on 2D and 3D grids; the one message below names them, so a refusal says where to go.
-ND_SUPPORTED: tuple[str, ...] = ("mottle.Grid",)
+ND_SUPPORTED: tuple[str, ...] = ("mottle.Grid", "the disorder models", "mottle.realize")
 
 
 def one_dimensional(what: str, grid: Any) -> None:

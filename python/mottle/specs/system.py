@@ -9,7 +9,7 @@ import numpy as np
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
-from .disorder import BoxDisorder, Disorder
+from .disorder import Disorder
 from .grid import Grid
 from .models import Continuum, Lattice
 from .potentials import Potential, _terms
@@ -64,8 +64,7 @@ class System:
                     f"disorder must be a mottle disorder model (WhiteNoise, BoxDisorder, GaussianDisorder, "
                     f"Speckle or a sum), got {type(self.disorder).__name__}"
                 )
-            if not isinstance(self.disorder, BoxDisorder):  # box disorder: a slab on 2D/3D grids
-                _checks.one_dimensional(f"disorder ({type(self.disorder).__name__})", self.grid)
+            # Every model works on 2D/3D grids too (a box region, or a slab along x).
             self.disorder.validate(self.grid)
             self.disorder.validate_model(self.model)
         if self.absorber is not None:
@@ -94,7 +93,7 @@ class System:
     def static_potential(self) -> np.ndarray:
         """The deterministic part of the potential at the grid points."""
         if self.potential is None:
-            return np.zeros(self.grid.points)
+            return np.zeros(self.grid.shape)
         return np.asarray(self.potential.values(self.grid, self.model), dtype=float)
 
     def kinetic_table(self) -> np.ndarray:
