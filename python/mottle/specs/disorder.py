@@ -71,7 +71,7 @@ class Disorder(Kinded):
                     f"({', '.join(_AXIS_NAMES[: grid.ndim])}): give one position per axis, or two numbers "
                     "for a slab along x"
                 )
-            return self.start, tuple(self.stop)  # type: ignore[arg-type]
+            return self.start, tuple(self.stop)
         low, high = np.ravel(grid.start), np.ravel(grid.stop)
         return (self.start, *map(float, low[1:])), (self.stop, *map(float, high[1:]))
 
@@ -142,9 +142,7 @@ def _region(model) -> None:
         start = _checks.real("start", start)
         stop = _checks.real("stop", stop)
         if not start < stop:
-            raise InvalidParameterError(
-                f"disorder region needs start < stop, got start={start}, stop={stop}"
-            )
+            raise InvalidParameterError(f"disorder region needs start < stop, got start={start}, stop={stop}")
     object.__setattr__(model, "start", start)
     object.__setattr__(model, "stop", stop)
 
