@@ -538,3 +538,9 @@ def test_a_bad_mesh_request_names_its_field():
         _core.realize_mesh(_requests.mesh(GRID_2D), terms, np.zeros((4, 4)), 0, 0)
     with pytest.raises(mo.InvalidParameterError, match="needs 2 starts and stops"):
         _core.realize_mesh(_requests.mesh(GRID_2D), [{**terms[0], "start": [0.0]}], np.zeros((96, 80)), 0, 0)
+
+
+def test_realize_on_a_box_without_disorder_is_the_static_potential():
+    # What tests/test_grid_nd.py listed as refused before: realize and the disorder models on a box.
+    assert np.array_equal(mo.realize(mo.System(GRID_2D)), np.zeros(GRID_2D.shape))
+    assert mo.realize(mo.System(GRID_3D, disorder=mo.WhiteNoise(0.1, -5.0, 5.0))).shape == GRID_3D.shape
