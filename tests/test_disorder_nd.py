@@ -229,7 +229,8 @@ def test_speckle_power_spectrum_at_zero_is_the_integral_of_its_correlation(dimen
     )
     exact = 0.09 * (4.0 * np.pi * 0.49 if dimension == 2 else 6.0 * np.pi**2 * 0.343)
     assert float(model.power_spectrum(0.0, dimension=dimension)) == pytest.approx(exact, rel=1e-12)
-    # The quadrature stops at 3000 l: the 2D tail beyond is ~ (8/pi) 2 pi / 3000 of l**2 V**2.
+    # The quadrature stops at r = 3000: the 2D tail beyond is about 8 l**3 V**2 / 3000
+    # (C ~ 4 l**3 V**2 / (pi r**3) on average), 1.5e-4 of the total.
     assert value == pytest.approx(exact, rel=2e-3)
 
 
