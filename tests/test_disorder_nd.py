@@ -545,3 +545,15 @@ def test_realize_on_a_box_without_disorder_is_the_static_potential():
     # What tests/test_grid_nd.py listed as refused before: realize and the disorder models on a box.
     assert np.array_equal(mo.realize(mo.System(GRID_2D)), np.zeros(GRID_2D.shape))
     assert mo.realize(mo.System(GRID_3D, disorder=mo.WhiteNoise(0.1, -5.0, 5.0))).shape == GRID_3D.shape
+
+
+def test_a_padded_box_that_cannot_fit_is_refused_before_drawing(monkeypatch):
+    # The sizes the core's FFTs use (rust/src/disorder.rs::tests::smooth_sizes), then the refusal on a
+    # machine made to look small: the 3D speckle's periodic box is 14 MiB.
+    assert [disorder_module._smooth_size(n) for n in (1000, 1001, 4097, 243, 1)] == [1000, 1024, 4320, 250, 2]
+    monkeypatch.setattr(disorder_module, "_memory_bytes", lambda: 1 << 20)
+    with pytest.raises(
+        mo.InvalidParameterError, match=r"periodic box of \(96, 108, 90\) points, about 14 MiB"
+    ):
+        mo.System(GRID_3D, disorder=whole(mo.Speckle, 0.2, ELL, dimension=3))
+    mo.System(GRID_3D, disorder=whole(mo.BoxDisorder, 1.0, dimension=3))  # per-site models need no box

@@ -25,7 +25,7 @@ import numpy as np
 
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
-from .grid import Grid
+from .grid import Grid, _memory_bytes
 from .kinds import Kinded
 
 _MIN_POINTS_PER_CORRELATION = limits.POINTS_PER_CORRELATION
@@ -108,6 +108,28 @@ class Disorder(Kinded):
                 )
             if not np.any((axis >= start) & (axis < stop)):
                 raise InvalidParameterError(f"{name} region [{start}, {stop}){along} holds no grid point")
+        if grid.ndim > 1:
+            self._check_padded_box(grid, starts, stops)
+
+    def _check_padded_box(self, grid: Grid, starts, stops) -> None:
+        """Refuse a correlated term whose periodic box (see ``_PADDING``) would not fit in memory."""
+        padding = _PADDING.get(self.kind)
+        if padding is None:
+            return
+        factor, lengths = padding
+        ell = float(getattr(self, "correlation_length"))  # noqa: B009 (the padded kinds have one)
+        shape = []
+        for start, stop, axis, dx in zip(starts, stops, grid.axes, np.ravel(grid.dx), strict=True):
+            points = int(np.count_nonzero((axis >= start) & (axis < stop)))
+            shape.append(_smooth_size(factor * points + math.ceil(lengths * ell / dx)))
+        need = _BYTES_PER_PADDED_POINT * math.prod(shape)
+        have = _memory_bytes()
+        if need > have:
+            raise InvalidParameterError(
+                f"{type(self).__name__} on this region is drawn on a periodic box of {tuple(shape)} points, "
+                f"about {need / 2**20:.0f} MiB per thread, more than this machine's {have / 2**20:.0f} MiB: "
+                "use a smaller region or grid"
+            )
 
     def validate_model(self, model) -> None:
         """Checks that need the kinetic model; the default has none."""
@@ -145,6 +167,30 @@ def _region(model) -> None:
             raise InvalidParameterError(f"disorder region needs start < stop, got start={start}, stop={stop}")
     object.__setattr__(model, "start", start)
     object.__setattr__(model, "stop", stop)
+
+
+# The periodic box of a correlated term on a 2D/3D grid, per axis: factor * (points of the region)
+# + lengths * correlation_length / dx, rounded up to a fast FFT size (rust/src/disorder/mesh.rs). Its
+# complex buffer (16 bytes a point) is allocated once per thread.
+_PADDING = {"gaussian": (1, 10.0), "speckle": (2, 16.0)}
+_BYTES_PER_PADDED_POINT = 16
+
+
+def _smooth_size(minimum: int) -> int:
+    """The least even size 2^a 3^b 5^c (a >= 1) at least ``minimum`` (rust/src/disorder.rs, smooth_size)."""
+    half = max((minimum + 1) // 2, 1)
+    best = 1 << (half - 1).bit_length()
+    p3 = 1
+    while p3 < best:
+        p35 = p3
+        while p35 < best:
+            size = p35
+            while size < half:
+                size *= 2
+            best = min(best, size)
+            p35 *= 5
+        p3 *= 3
+    return 2 * best
 
 
 def _dimension(value: object) -> int:

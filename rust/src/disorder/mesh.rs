@@ -226,11 +226,11 @@ struct Transform {
 
 impl Transform {
     fn new(planner: &mut FftPlanner<f64>, shape: Vec<usize>) -> Result<Self, CoreError> {
-        if shape
+        // Its complex buffer must be addressable (a Vec larger than isize::MAX bytes panics).
+        let bytes = shape
             .iter()
-            .try_fold(1usize, |size, &n| size.checked_mul(n))
-            .is_none()
-        {
+            .try_fold(std::mem::size_of::<Complex64>(), |size, &n| size.checked_mul(n));
+        if bytes.is_none_or(|bytes| bytes > isize::MAX as usize) {
             return invalid(format!(
                 "the periodic box of a correlated disorder term, shape {shape:?}, has too many points"
             ));
