@@ -17,6 +17,9 @@
 //!   Optics, 2007) and `V >= -s` for `s > 0`. Its periodic box is, along each
 //!   axis, twice the region plus sixteen correlation lengths, as on a line.
 //!
+//! (`_PADDING` in python/mottle/specs/disorder.py repeats these box sizes to
+//! refuse, before any allocation, a box that cannot fit in memory.)
+//!
 //! The Gaussian field is `sqrt(2) Re E` for the complex field `E = sum_q A(q)
 //! xi_q e^{i q r}` with `xi_q` independent complex normals of unit mean square:
 //! the real and imaginary parts of `E` are independent real Gaussian fields of
