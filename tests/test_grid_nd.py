@@ -128,8 +128,6 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
             lambda: mo.System(BOX, potential=mo.Harmonic(1.0) + mo.Kicked(mo.Cosine(1.0, 1.0), 1.0)),
         ),
         ("RandomPacket", lambda: mo.RandomPacket(mo.Uniform(-1.0, 1.0), 1.0, 3.0).validate(BOX)),
-        (r"disorder \(Speckle\)", lambda: mo.System(BOX, disorder=mo.Speckle(0.1, 1.0, -5.0, 5.0))),
-        (r"disorder \(WhiteNoise\)", lambda: mo.WhiteNoise(0.1, -5.0, 5.0).validate(BOX)),
         (r"Grid\.x", lambda: BOX.x),
         (r"Grid\.shift", lambda: BOX.shift(0.5)),
     ],

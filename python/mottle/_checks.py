@@ -101,8 +101,9 @@ ND_SUPPORTED: tuple[str, ...] = (
     "mottle.Grid",
     "GaussianPacket, Wavefunction, PacketList",
     "the static potentials (Barrier, Harmonic, Tabulated, Cosine)",
-    "System.static_potential",
-    "mottle.reference.propagate",
+    "the disorder models",
+    "Absorber",
+    "propagate, ensemble, realize, mottle.reference.propagate and studies",
 )
 
 

@@ -28,6 +28,7 @@ __all__ = [
     "lyapunov_exponents_of",
     "propagate_one",
     "realize",
+    "realize_mesh",
 ]
 
 __version__: str
@@ -144,6 +145,46 @@ class _Cauchy(TypedDict):
     stop: float
 
 _Term = _WhiteNoise | _Box | _Gaussian | _Speckle | _Cauchy
+
+class _Mesh(TypedDict):
+    shape: list[int]
+    spacing: list[float]
+    start: list[float]
+
+class _BoxWhiteNoise(TypedDict):
+    kind: Literal["white-noise"]
+    strength: float
+    start: list[float]
+    stop: list[float]
+
+class _BoxBox(TypedDict):
+    kind: Literal["box"]
+    width: float
+    start: list[float]
+    stop: list[float]
+
+class _BoxGaussian(TypedDict):
+    kind: Literal["gaussian"]
+    rms: float
+    correlation_length: float
+    start: list[float]
+    stop: list[float]
+
+class _BoxSpeckle(TypedDict):
+    kind: Literal["speckle"]
+    strength: float
+    correlation_length: float
+    sign: int
+    start: list[float]
+    stop: list[float]
+
+class _BoxCauchy(TypedDict):
+    kind: Literal["cauchy"]
+    width: float
+    start: list[float]
+    stop: list[float]
+
+_BoxTerm = _BoxWhiteNoise | _BoxBox | _BoxGaussian | _BoxSpeckle | _BoxCauchy
 
 class _FixedDraw(TypedDict):
     kind: Literal["fixed"]
@@ -271,6 +312,13 @@ def propagate_one(
 def realize(
     line: _Line,
     disorder: list[_Term],
+    base: npt.NDArray[np.float64],
+    seed: int,
+    index: int,
+) -> npt.NDArray[np.float64]: ...
+def realize_mesh(
+    mesh: _Mesh,
+    disorder: list[_BoxTerm],
     base: npt.NDArray[np.float64],
     seed: int,
     index: int,

@@ -21,6 +21,7 @@ if TYPE_CHECKING:
 
     from ._core import (
         _Bar,
+        _BoxTerm,
         _ClassicalStart,
         _Draw,
         _Drive,
@@ -28,6 +29,7 @@ if TYPE_CHECKING:
         _Ground,
         _Kick,
         _Line,
+        _Mesh,
         _Model,
         _Packets,
         _Particles,
@@ -52,6 +54,15 @@ def line(grid: Grid) -> _Line:
     return {"points": int(grid.points), "dx": float(grid.dx), "start": float(grid.start)}
 
 
+def mesh(grid: Grid) -> _Mesh:
+    """Where the points of a grid of 1 to 3 axes are (C order, axis 0 slowest)."""
+    return {
+        "shape": [int(n) for n in grid.shape],
+        "spacing": [float(dx) for dx in np.ravel(grid.dx)],
+        "start": [float(x) for x in np.ravel(grid.start)],
+    }
+
+
 def model(spec: Continuum | Lattice) -> _Model:
     """The kinetic-energy model: its kind and declared fields."""
     return cast("_Model", {"kind": spec.kind, **kinds.values(spec)})
@@ -62,6 +73,19 @@ def disorder_terms(disorder: Disorder | None) -> list[_Term]:
     if disorder is None:
         return []
     return [cast("_Term", {"kind": term.kind, **kinds.values(term)}) for term in disorder.terms]
+
+
+def box_disorder_terms(disorder: Disorder | None, grid: Grid) -> list[_BoxTerm]:
+    """One request per independent term on ``grid``: its kind, declared fields and its region as one
+    start and stop per axis (a slab spans the box along axes 1 and 2)."""
+    if disorder is None:
+        return []
+    out = []
+    for term in disorder.terms:
+        start, stop = term.region(grid)
+        fields = {**kinds.values(term), "start": [float(x) for x in start], "stop": [float(x) for x in stop]}
+        out.append(cast("_BoxTerm", {"kind": term.kind, **fields}))
+    return out
 
 
 def setup(system: System, step: float, splitting: str) -> _Setup:

@@ -25,6 +25,9 @@
 //! in the list), so realization `index` never depends on how work is spread.
 //! A `Plan` (checks, filters, FFT plans) is made once per run and shared by
 //! the threads; each thread's `Realizer` owns its buffers.
+//!
+//! On a 2D or 3D grid (`Plan::new_mesh`, a `Mesh` and `BoxTerm`s) the same
+//! models are drawn in `d` dimensions by `mesh`; a 1-axis mesh is a `Line`.
 
 use std::sync::Arc;
 
@@ -36,6 +39,9 @@ use crate::error::{invalid, CoreError};
 use crate::random::Stream;
 
 mod cauchy;
+mod mesh;
+
+pub use mesh::{BoxTerm, Mesh, MAX_AXES};
 
 /// One random model and its region `[start, stop)`.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -135,6 +141,8 @@ struct Prepared {
 pub struct Plan {
     line: Line,
     terms: Vec<Prepared>,
+    /// A plan on 2 or 3 axes (then `terms` is empty).
+    mesh: Option<mesh::MeshPlan>,
 }
 
 /// Draws realizations of a plan; one per thread (it owns the buffers).
@@ -143,6 +151,7 @@ pub struct Realizer {
     spectrum: Vec<Complex64>,
     values: Vec<f64>,
     scratch: Vec<Complex64>,
+    mesh: mesh::Buffers,
 }
 
 /// The least even size of the form 2^a 3^b 5^c (a >= 1) at least `minimum`:
@@ -255,11 +264,72 @@ impl Plan {
         Ok(Plan {
             line,
             terms: prepared,
+            mesh: None,
         })
     }
 
+    /// A plan for `terms` on a mesh of 1 to 3 axes. A 1-axis mesh is the line
+    /// `Plan::new` takes (the same numbers); on 2 or 3 axes see `mesh`.
+    pub fn new_mesh(mesh: Mesh, terms: &[BoxTerm]) -> Result<Self, CoreError> {
+        mesh.check()?;
+        if mesh.ndim() == 1 {
+            let line = Line {
+                points: mesh.shape[0],
+                dx: mesh.spacing[0],
+                start: mesh.start[0],
+            };
+            let terms = terms
+                .iter()
+                .map(|term| match (term.start.as_slice(), term.stop.as_slice()) {
+                    (&[start], &[stop]) => Ok(Term {
+                        kind: term.kind,
+                        start,
+                        stop,
+                    }),
+                    _ => invalid(format!(
+                        "a disorder region on a mesh of 1 axis needs 1 start and stop, got {} and {}",
+                        term.start.len(),
+                        term.stop.len()
+                    )),
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            return Plan::new(line, &terms);
+        }
+        let size = mesh.size();
+        let line = Line {
+            points: size,
+            dx: mesh.spacing[0],
+            start: mesh.start[0],
+        };
+        Ok(Plan {
+            line,
+            terms: Vec::new(),
+            mesh: Some(mesh::MeshPlan::new(mesh, terms)?),
+        })
+    }
+
+    /// The grid line of a 1D plan. For a plan on 2 or 3 axes it only carries
+    /// the number of points (`points`, all axes together) and axis 0's
+    /// spacing and start: use `mesh()`.
     pub fn line(&self) -> Line {
         self.line
+    }
+
+    /// The grid (a 1D plan's line as a 1-axis mesh).
+    pub fn mesh(&self) -> Mesh {
+        match &self.mesh {
+            Some(plan) => plan.mesh().clone(),
+            None => Mesh {
+                shape: vec![self.line.points],
+                spacing: vec![self.line.dx],
+                start: vec![self.line.start],
+            },
+        }
+    }
+
+    /// The number of grid points (the length of the buffer `Realizer::add_to` takes).
+    pub fn size(&self) -> usize {
+        self.line.points
     }
 }
 
@@ -276,11 +346,17 @@ impl Realizer {
             let (c, v, s) = term.generator.buffers();
             (spectrum, values, scratch) = (spectrum.max(c), values.max(v), scratch.max(s));
         }
+        let mesh = plan
+            .mesh
+            .as_ref()
+            .map(mesh::Buffers::new)
+            .unwrap_or_default();
         Realizer {
             plan,
             spectrum: vec![Complex64::new(0.0, 0.0); spectrum],
             values: vec![0.0; values],
             scratch: vec![Complex64::new(0.0, 0.0); scratch],
+            mesh,
         }
     }
 
@@ -288,13 +364,17 @@ impl Realizer {
         &self.plan
     }
 
-    /// Add realization `index` of `seed` to `potential` (the grid's size).
+    /// Add realization `index` of `seed` to `potential` (the grid's size; on
+    /// a mesh, C order with axis 0 slowest).
     pub fn add_to(
         &mut self,
         seed: u64,
         index: u64,
         potential: &mut [f64],
     ) -> Result<(), CoreError> {
+        if let Some(plan) = &self.plan.mesh {
+            return mesh::add(plan, &mut self.mesh, seed, index, potential);
+        }
         let line = self.plan.line;
         if potential.len() != line.points {
             return invalid(format!(

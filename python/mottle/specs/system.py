@@ -9,7 +9,7 @@ import numpy as np
 from .. import _checks, limits
 from ..errors import InvalidParameterError, InvalidTypeError
 from .absorber import Absorber
-from .disorder import BoxDisorder, Disorder
+from .disorder import Disorder
 from .grid import Grid
 from .models import Continuum, Lattice
 from .potentials import Potential
@@ -62,8 +62,7 @@ class System:
                     f"disorder must be a mottle disorder model (WhiteNoise, BoxDisorder, GaussianDisorder, "
                     f"Speckle or a sum), got {type(self.disorder).__name__}"
                 )
-            if not isinstance(self.disorder, BoxDisorder):  # box disorder: a slab on 2D/3D grids
-                _checks.one_dimensional(f"disorder ({type(self.disorder).__name__})", self.grid)
+            # Every model works on 2D/3D grids too (a box region, or a slab along x).
             self.disorder.validate(self.grid)
             self.disorder.validate_model(self.model)
         if self.absorber is not None:

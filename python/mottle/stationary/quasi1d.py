@@ -187,6 +187,12 @@ def _slices(system: System, region) -> tuple[int, float]:
             "the quasi-1D transfer matrices draw one BoxDisorder (the Anderson model), got "
             f"{type(disorder).__name__}"
         )
+    if disorder is not None and isinstance(disorder.start, tuple):
+        raise InvalidParameterError(
+            f"the quasi-1D transfer matrices draw every site of each slice: the BoxDisorder region "
+            f"start={disorder.start!r}, stop={disorder.stop!r} is a box; use numbers start, stop (a slab "
+            "along x across the bar)"
+        )
     if region is None:
         if disorder is None:
             raise InvalidParameterError(

@@ -1,11 +1,15 @@
 //! Bindings for disorder realizations (`crate::disorder`).
 
-use numpy::{IntoPyArray, PyReadonlyArray1};
+use std::sync::Arc;
+
+use numpy::ndarray::{ArrayD, IxDyn};
+use numpy::{IntoPyArray, PyReadonlyArray1, PyReadonlyArrayDyn};
 use pyo3::prelude::*;
 
 use super::error::to_pyerr;
 use super::request::{request, tagged};
-use crate::disorder::{Kind, Line, Realizer, Term};
+use super::run_detached;
+use crate::disorder::{BoxTerm, Kind, Line, Mesh, Plan, Realizer, Term};
 use crate::error::{invalid, CoreError};
 
 request! {
@@ -23,6 +27,25 @@ impl LineRequest {
             points: self.points,
             dx: self.dx,
             start: self.start,
+        }
+    }
+}
+
+request! {
+    /// A grid of 1 to 3 axes (C order, axis 0 slowest).
+    pub(crate) struct MeshRequest("grid mesh") {
+        shape: Vec<usize>,
+        spacing: Vec<f64>,
+        start: Vec<f64>,
+    }
+}
+
+impl MeshRequest {
+    pub(crate) fn mesh(&self) -> Mesh {
+        Mesh {
+            shape: self.shape.clone(),
+            spacing: self.spacing.clone(),
+            start: self.start.clone(),
         }
     }
 }
@@ -67,20 +90,86 @@ impl TermRequest {
                 sign,
                 start,
                 stop,
-            } => {
-                if sign != 1 && sign != -1 {
-                    return invalid(format!("speckle sign must be 1 or -1, got {sign}"));
-                }
-                let strength = sign as f64 * strength;
-                let kind = Kind::Speckle {
-                    strength,
-                    correlation_length,
-                };
-                (kind, start, stop)
-            }
+            } => (speckle(strength, correlation_length, sign)?, start, stop),
         };
         Ok(Term { kind, start, stop })
     }
+}
+
+/// A speckle's kind, the sign folded into the strength.
+fn speckle(strength: f64, correlation_length: f64, sign: i64) -> Result<Kind, CoreError> {
+    if sign != 1 && sign != -1 {
+        return invalid(format!("speckle sign must be 1 or -1, got {sign}"));
+    }
+    Ok(Kind::Speckle {
+        strength: sign as f64 * strength,
+        correlation_length,
+    })
+}
+
+tagged! {
+    /// One disorder term on a mesh: as `TermRequest`, its region a box with one
+    /// start and stop per axis.
+    pub(crate) enum BoxTermRequest("disorder box term") {
+        "white-noise" => WhiteNoise { strength: f64, start: Vec<f64>, stop: Vec<f64> },
+        "box" => Box { width: f64, start: Vec<f64>, stop: Vec<f64> },
+        "gaussian" => Gaussian { rms: f64, correlation_length: f64, start: Vec<f64>, stop: Vec<f64> },
+        "speckle" => Speckle { strength: f64, correlation_length: f64, sign: i64, start: Vec<f64>, stop: Vec<f64> },
+        "cauchy" => Cauchy { width: f64, start: Vec<f64>, stop: Vec<f64> },
+    }
+}
+
+impl BoxTermRequest {
+    pub(crate) fn term(&self) -> Result<BoxTerm, CoreError> {
+        let (kind, start, stop) = match self {
+            BoxTermRequest::WhiteNoise {
+                strength,
+                start,
+                stop,
+            } => (
+                Kind::WhiteNoise {
+                    strength: *strength,
+                },
+                start,
+                stop,
+            ),
+            BoxTermRequest::Box { width, start, stop } => {
+                (Kind::Box { width: *width }, start, stop)
+            }
+            BoxTermRequest::Cauchy { width, start, stop } => {
+                (Kind::Cauchy { width: *width }, start, stop)
+            }
+            BoxTermRequest::Gaussian {
+                rms,
+                correlation_length,
+                start,
+                stop,
+            } => (
+                Kind::Gaussian {
+                    rms: *rms,
+                    correlation_length: *correlation_length,
+                },
+                start,
+                stop,
+            ),
+            BoxTermRequest::Speckle {
+                strength,
+                correlation_length,
+                sign,
+                start,
+                stop,
+            } => (speckle(*strength, *correlation_length, *sign)?, start, stop),
+        };
+        Ok(BoxTerm {
+            kind,
+            start: start.clone(),
+            stop: stop.clone(),
+        })
+    }
+}
+
+pub(crate) fn box_terms(requests: &[BoxTermRequest]) -> Result<Vec<BoxTerm>, CoreError> {
+    requests.iter().map(BoxTermRequest::term).collect()
 }
 
 pub(crate) fn terms(requests: &[TermRequest]) -> Result<Vec<Term>, CoreError> {
@@ -106,7 +195,42 @@ fn realize<'py>(
     Ok(potential.into_pyarray(py))
 }
 
+/// Realization `index` of `seed` on a mesh of 1 to 3 axes: the disorder terms
+/// added to `base` (an array of the mesh's shape, C order).
+#[pyfunction]
+fn realize_mesh<'py>(
+    py: Python<'py>,
+    mesh: MeshRequest,
+    disorder: Vec<BoxTermRequest>,
+    base: PyReadonlyArrayDyn<'py, f64>,
+    seed: u64,
+    index: u64,
+) -> PyResult<Bound<'py, numpy::PyArrayDyn<f64>>> {
+    let base = base.as_array();
+    let mesh = mesh.mesh();
+    if base.shape() != mesh.shape.as_slice() {
+        let message = format!(
+            "the base potential has shape {:?}; the mesh has shape {:?}",
+            base.shape(),
+            mesh.shape
+        );
+        return Err(to_pyerr(py, CoreError::InvalidInput(message)));
+    }
+    // C order whatever the base's memory layout (iter() walks it logically).
+    let mut potential: Vec<f64> = base.iter().copied().collect();
+    let shape = mesh.shape.clone();
+    let potential = run_detached(py, move |_| {
+        let terms = box_terms(&disorder)?;
+        let mut realizer = Realizer::with_plan(Arc::new(Plan::new_mesh(mesh, &terms)?));
+        realizer.add_to(seed, index, &mut potential)?;
+        ArrayD::from_shape_vec(IxDyn(&shape), potential)
+            .map_err(|error| CoreError::Internal(format!("realization shape: {error}")))
+    })?;
+    Ok(potential.into_pyarray(py))
+}
+
 pub(crate) fn register(module: &Bound<'_, PyModule>) -> PyResult<()> {
     module.add_function(wrap_pyfunction!(realize, module)?)?;
+    module.add_function(wrap_pyfunction!(realize_mesh, module)?)?;
     Ok(())
 }
