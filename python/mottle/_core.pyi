@@ -332,6 +332,7 @@ def ensemble_chunks(
     disorder: list[_Term],
     packets: _Packets,
     drive: _Drive | None = None,
+    mesh: tuple[_Mesh, list[_BoxTerm]] | None = None,
 ) -> list[dict[str, Any]]: ...
 def lyapunov_exponents_of(
     line: _Line,

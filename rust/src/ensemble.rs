@@ -12,7 +12,7 @@ use std::sync::Arc;
 use num_complex::{Complex, Complex64};
 use rayon::prelude::*;
 
-use crate::disorder::{Line, Plan, Realizer, Term};
+use crate::disorder::{BoxTerm, Line, Mesh, Plan, Realizer, Term};
 use crate::drive::Drive;
 use crate::error::{invalid, CoreError};
 use crate::observables::{axis_wavenumbers, momentum_scale, observe, Detector};
@@ -33,6 +33,8 @@ pub const DENSITY_FLOOR: f64 = 1e-300;
 pub struct Spec {
     pub static_potential: Vec<f64>,
     pub disorder: Vec<Term>,
+    /// On a 2D/3D grid the disorder is drawn on its mesh (and `disorder` is empty).
+    pub mesh_disorder: Option<(Mesh, Vec<BoxTerm>)>,
     pub packets: PacketSource,
     pub steps: usize,
     pub pauses: Vec<Pause>,
@@ -121,7 +123,7 @@ pub fn run_chunks<T: Real>(
         {
             return invalid(format!(
                 "on a {}D grid an ensemble takes fixed or listed packets, no spectrum, no \
-                 twisted boundary and (for now) no disorder",
+                 twisted boundary, and its disorder on the grid's mesh",
                 setup.shape.len()
             ));
         }
@@ -154,7 +156,17 @@ pub fn run_chunks<T: Real>(
     }
     let grid = line(setup.points, setup.dx, setup.start);
     // Fail on bad disorder before any thread starts; one plan for every chunk.
-    let plan = Arc::new(Plan::new(grid, &spec.disorder)?);
+    let plan = Arc::new(match &spec.mesh_disorder {
+        Some((mesh, terms)) => Plan::new_mesh(mesh.clone(), terms)?,
+        None => Plan::new(grid, &spec.disorder)?,
+    });
+    if plan.size() != setup.points {
+        return invalid(format!(
+            "the disorder's mesh has {} points; the grid has {}",
+            plan.size(),
+            setup.points
+        ));
+    }
     let offsets = Offsets::<T>::new(setup, &spec.pauses)?;
     let starts: Vec<usize> = (start..start + count).step_by(CHUNK).collect();
     starts

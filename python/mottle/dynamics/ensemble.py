@@ -27,7 +27,7 @@ from .realize import realize
 from .spectrum import Spectrum, settling_problem, spectrum_config
 
 if TYPE_CHECKING:
-    from .._core import _Drive, _EnsembleRun, _Packets, _Setup, _Term
+    from .._core import _BoxTerm, _Drive, _EnsembleRun, _Mesh, _Packets, _Setup, _Term
 
 CHUNK: int = _core.CHUNK
 """Realizations per chunk: the unit of work and of reproducible reduction."""
@@ -335,6 +335,7 @@ class _Plan:
     step: float
     duration: float
     drive: _Drive | None = None
+    mesh: tuple[_Mesh, list[_BoxTerm]] | None = None
 
 
 def plan(
@@ -393,7 +394,12 @@ def plan(
         ),
         absorption=system.absorption(),
         static=np.ravel(system.static_potential()),
-        disorder=_requests.disorder_terms(system.disorder),
+        disorder=[] if nd.is_box(system) else _requests.disorder_terms(system.disorder),
+        mesh=(
+            (_requests.mesh(system.grid), _requests.box_disorder_terms(system.disorder, system.grid))
+            if nd.is_box(system) and system.disorder is not None
+            else None
+        ),
         packets=_requests.packets(system.grid, packet),
         times=arguments.times,
         seed=seed,
@@ -407,7 +413,7 @@ def plan(
 def _run_chunks(plan: _Plan, start: int, count: int, threads: int) -> list:
     run = _requests.share(plan.run, start, count, threads)
     return _core.ensemble_chunks(
-        plan.setup, run, plan.absorption, plan.static, plan.disorder, plan.packets, plan.drive
+        plan.setup, run, plan.absorption, plan.static, plan.disorder, plan.packets, plan.drive, plan.mesh
     )
 
 

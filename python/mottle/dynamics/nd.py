@@ -85,7 +85,8 @@ def warn_if_coarse(system, packet, step: float, potential: np.ndarray) -> None:
     density = np.abs(packet.values(grid)) ** 2
     support = density > 1e-10 * density.max()
     kinetic = sum(
-        float(model.kinetic(band, grid.dx[a]) - model.kinetic(0.0, grid.dx[a])) for a, band in enumerate(bands)
+        float(model.kinetic(band, grid.dx[a]) - model.kinetic(0.0, grid.dx[a]))
+        for a, band in enumerate(bands)
     )
     floor = float(np.min(potential))
     gain = max(kinetic + float(np.max(potential[support])) - floor, 0.0)

@@ -231,9 +231,7 @@ def _per_axis(value: object, integer: bool = False) -> bool:
     return (
         isinstance(value, list)
         and len(value) in AXES
-        and all(
-            isinstance(v, int if integer else (int, float)) and not isinstance(v, bool) for v in value
-        )
+        and all(isinstance(v, int if integer else (int, float)) and not isinstance(v, bool) for v in value)
     )
 
 

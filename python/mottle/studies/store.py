@@ -577,9 +577,7 @@ class Store:
             positions[stored] = np.arange(c["n"])
             for name, extra, getter in _PROFILES:
                 extra = tuple(
-                    axis
-                    for part in extra
-                    for axis in {"x": spatial, "k": spectral, "time": ("time",)}[part]
+                    axis for part in extra for axis in {"x": spatial, "k": spectral, "time": ("time",)}[part]
                 ) + (per_axis if name in _PER_AXIS_PROFILES else ())
                 lazy = _LazyProfiles(self, positions.reshape(shape), tuple(sizes[a] for a in extra), getter)
                 variables[name] = (dims + list(extra), _lazily(lazy))

@@ -6,7 +6,7 @@ use numpy::{IntoPyArray, PyReadonlyArray1};
 use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList};
 
-use super::disorder::{terms, TermRequest};
+use super::disorder::{box_terms, terms, BoxTermRequest, MeshRequest, TermRequest};
 use super::drive::DriveRequest;
 use super::error::to_pyerr;
 use super::packets::PacketsRequest;
@@ -111,9 +111,10 @@ fn chunk_dict<'py>(
 }
 
 /// Run realizations `start .. start+count` of an ensemble; returns one dict per chunk, in order.
-/// `drive`: the time-dependent terms and twist, drawn per realization.
+/// `drive`: the time-dependent terms and twist, drawn per realization; `mesh`: on a 2D/3D grid,
+/// the mesh and the disorder terms drawn on it (`disorder` then empty).
 #[pyfunction]
-#[pyo3(signature = (setup, run, absorption, static_potential, disorder, packets, drive=None))]
+#[pyo3(signature = (setup, run, absorption, static_potential, disorder, packets, drive=None, mesh=None))]
 #[allow(clippy::too_many_arguments)]
 fn ensemble_chunks<'py>(
     py: Python<'py>,
@@ -124,6 +125,7 @@ fn ensemble_chunks<'py>(
     disorder: Vec<TermRequest>,
     packets: PacketsRequest,
     drive: Option<DriveRequest>,
+    mesh: Option<(MeshRequest, Vec<BoxTermRequest>)>,
 ) -> PyResult<Bound<'py, PyList>> {
     let absorption = absorption.as_array().to_vec();
     let static_potential = static_potential.as_array().to_vec();
@@ -154,6 +156,10 @@ fn ensemble_chunks<'py>(
             drive,
             static_potential,
             disorder: terms(&disorder)?,
+            mesh_disorder: match &mesh {
+                Some((mesh, requests)) => Some((mesh.mesh(), box_terms(requests)?)),
+                None => None,
+            },
             packets: packets.into_source(),
             steps,
             pauses: pauses_of(&pauses, &offsets)?,
