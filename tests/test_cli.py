@@ -416,6 +416,17 @@ def test_the_demo_condensate_released_into_speckle_grows_tails_that_settle():
     assert abs(late - middle) < 2.0 * math.hypot(late_error, middle_error)
 
 
+def test_the_demo_slab_in_2d_shows_the_backscattering_peak(tmp_path):
+    from mottle.cli.demo import backscattering_slab
+
+    lines, ratio = backscattering_slab(realizations=48, figure_path=tmp_path / "cbs.png")
+    # Cherroret et al., Phys. Rev. A 85, 011604 (2012): a peak at -k0 above the reflected ring;
+    # from a slab it stays below the bulk's 2 (single scattering, the finite spot).
+    assert 1.15 < ratio < 2.2, ratio
+    assert "a packet entering a speckled slab in 2D" in lines[0]
+    assert (tmp_path / "cbs.png").stat().st_size > 10000
+
+
 def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     began = time.monotonic()
     result = mottle("demo", "--out", tmp_path / "demo", "--quiet", timeout=240)
@@ -423,6 +434,8 @@ def test_demo_writes_study_store_and_figures_within_two_minutes(tmp_path):
     assert result.returncode == 0, result.stderr
     assert elapsed < 120
     assert "a condensate released into a speckled guide" in result.stdout
+    assert "a packet entering a speckled slab in 2D" in result.stdout
+    assert (tmp_path / "demo" / "figures" / "backscattering_2d.png").exists()
     for line in (
         f"study:   {tmp_path / 'demo' / 'demo.toml'}",
         f"store:   {tmp_path / 'demo' / 'demo.mottle'}",
