@@ -232,7 +232,9 @@ impl Transform {
         // Its complex buffer must be addressable (a Vec larger than isize::MAX bytes panics).
         let bytes = shape
             .iter()
-            .try_fold(std::mem::size_of::<Complex64>(), |size, &n| size.checked_mul(n));
+            .try_fold(std::mem::size_of::<Complex64>(), |size, &n| {
+                size.checked_mul(n)
+            });
         if bytes.is_none_or(|bytes| bytes > isize::MAX as usize) {
             return invalid(format!(
                 "the periodic box of a correlated disorder term, shape {shape:?}, has too many points"
