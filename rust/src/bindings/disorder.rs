@@ -8,7 +8,7 @@ use pyo3::prelude::*;
 
 use super::error::to_pyerr;
 use super::request::{request, tagged};
-use super::run_detached;
+use super::run_released;
 use crate::disorder::{BoxTerm, Kind, Line, Mesh, Plan, Realizer, Term};
 use crate::error::{invalid, CoreError};
 
@@ -216,10 +216,13 @@ fn realize_mesh<'py>(
         );
         return Err(to_pyerr(py, CoreError::InvalidInput(message)));
     }
-    // C order whatever the base's memory layout (iter() walks it logically).
-    let mut potential: Vec<f64> = base.iter().copied().collect();
+    // C order whatever the base's memory layout (iter() walks it logically; slower than a copy).
+    let mut potential: Vec<f64> = match base.as_slice() {
+        Some(values) => values.to_vec(),
+        None => base.iter().copied().collect(),
+    };
     let shape = mesh.shape.clone();
-    let potential = run_detached(py, move |_| {
+    let potential = run_released(py, move || {
         let terms = box_terms(&disorder)?;
         let mut realizer = Realizer::with_plan(Arc::new(Plan::new_mesh(mesh, &terms)?));
         realizer.add_to(seed, index, &mut potential)?;

@@ -73,6 +73,19 @@ where
     result.map_err(|error| to_pyerr(py, error))
 }
 
+/// Run a short `work` with the GIL released on this thread (no Ctrl-C
+/// polling: `run_detached`'s waits cost about a millisecond a call). Panics
+/// become errors.
+pub(crate) fn run_released<R, F>(py: Python<'_>, work: F) -> PyResult<R>
+where
+    R: Send,
+    F: FnOnce() -> Result<R, CoreError> + Send,
+{
+    let result = py.detach(|| catch_unwind(AssertUnwindSafe(work)));
+    let result = result.unwrap_or_else(|panic| Err(CoreError::Internal(panic_message(&panic))));
+    result.map_err(|error| to_pyerr(py, error))
+}
+
 fn panic_message(panic: &Box<dyn std::any::Any + Send>) -> String {
     panic
         .downcast_ref::<&str>()

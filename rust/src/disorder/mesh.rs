@@ -516,7 +516,6 @@ impl Buffers {
         for term in &plan.terms {
             match &term.generator {
                 Generator::WhiteNoise { .. } | Generator::Box { .. } | Generator::Cauchy { .. } => {
-                    values = values.max(term.region.size());
                 }
                 Generator::Gaussian { transform, .. } | Generator::Speckle { transform, .. } => {
                     spectrum = spectrum.max(transform.size());
@@ -537,27 +536,42 @@ impl Buffers {
     }
 }
 
-/// Adds `values`, the region's points in C order, to the region of `potential`.
+/// Values of a per-site model made at once (even, so that box disorder's two
+/// values per word pair up as in one call over the whole region).
+const SITE_CHUNK: usize = 1024;
+
+/// Adds the values `fill` makes, the region's points in C order, to the region
+/// of `potential`: `fill` overwrites a chunk with the next values, chunks of
+/// `SITE_CHUNK` but the last, so the stream is read as by one call over the
+/// whole region and no buffer of the region's size is needed.
 fn add_sites(
     ndim: usize,
     region: &Region,
     mesh: (&[usize; MAX_AXES], usize),
-    values: &[f64],
     potential: &mut [f64],
+    mut fill: impl FnMut(&mut [f64]),
 ) {
     let row = region.extent[ndim - 1];
-    let region_strides = strides(&region.extent[..ndim]);
-    for_rows(
-        ndim,
-        &region.extent,
-        mesh,
-        (&region_strides, 0),
-        |at, from| {
-            for (v, &w) in potential[at..at + row].iter_mut().zip(&values[from..]) {
+    let mut chunk = [0.0; SITE_CHUNK];
+    let (mut remaining, mut made, mut used) = (region.size(), 0, 0);
+    for_rows(ndim, &region.extent, mesh, (&[0; MAX_AXES], 0), |at, _| {
+        let mut done = 0;
+        while done < row {
+            if used == made {
+                made = SITE_CHUNK.min(remaining);
+                fill(&mut chunk[..made]);
+                (remaining, used) = (remaining - made, 0);
+            }
+            let take = (row - done).min(made - used);
+            for (v, &w) in potential[at + done..at + done + take]
+                .iter_mut()
+                .zip(&chunk[used..used + take])
+            {
                 *v += w;
             }
-        },
-    );
+            (done, used) = (done + take, used + take);
+        }
+    });
 }
 
 /// Add realization `index` of `seed` to `potential` (the mesh's size, C order).
@@ -585,22 +599,22 @@ pub(super) fn add(
         let row = region.extent[ndim - 1];
         match &prepared.generator {
             &Generator::WhiteNoise { sigma } => {
-                let values = &mut buffers.values[..region.size()];
-                stream.normals(values);
-                values.iter_mut().for_each(|v| *v *= sigma);
-                add_sites(ndim, region, (&mesh_strides, origin), values, potential);
+                add_sites(ndim, region, (&mesh_strides, origin), potential, |values| {
+                    stream.normals(values);
+                    values.iter_mut().for_each(|v| *v *= sigma);
+                });
             }
             &Generator::Box { width } => {
-                let values = &mut buffers.values[..region.size()];
-                values.fill(0.0);
-                stream.add_centered_uniforms(values, width);
-                add_sites(ndim, region, (&mesh_strides, origin), values, potential);
+                add_sites(ndim, region, (&mesh_strides, origin), potential, |values| {
+                    values.fill(0.0);
+                    stream.add_centered_uniforms(values, width);
+                });
             }
             &Generator::Cauchy { width } => {
-                let values = &mut buffers.values[..region.size()];
-                values.fill(0.0);
-                cauchy::add(&mut stream, width, values);
-                add_sites(ndim, region, (&mesh_strides, origin), values, potential);
+                add_sites(ndim, region, (&mesh_strides, origin), potential, |values| {
+                    values.fill(0.0);
+                    cauchy::add(&mut stream, width, values);
+                });
             }
             Generator::Gaussian {
                 transform,
