@@ -222,7 +222,7 @@ class _BoxGrid(Grid):
             raise InvalidParameterError(
                 f"points={points} ({size} points) needs about {need / 2**30:.1f} GiB for one run, more "
                 f"than this machine's {have / 2**30:.1f} GiB; use at most {have // _BYTES_PER_POINT} "
-                f"points in all (e.g. fewer along {_axis(int(np.argmax(points)))})"
+                f"points in all (e.g. fewer points {_axis(int(np.argmax(points)))})"
             )
         object.__setattr__(self, "points", points)
         object.__setattr__(self, "length", length)
