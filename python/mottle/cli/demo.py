@@ -21,6 +21,7 @@ import re
 import time
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 STUDY = """\
 # mottle demo: a matter-wave packet crossing a speckled stretch of a waveguide.
@@ -196,13 +197,18 @@ def backscattering_slab(
     from ..specs.packets import GaussianPacket
     from ..specs.system import System
 
-    grid = Grid(points=(160, 144), length=(80.0, 72.0))
+    # Tuples per axis (the spec classes annotate their 1D field types).
+    points: Any = (160, 144)
+    length: Any = (80.0, 72.0)
+    grid = Grid(points=points, length=length)
     ring = 13  # k0 = 2 pi 13 / 80, on the grid
     k0 = 2.0 * math.pi * ring / 80.0
     system = System(
         grid, disorder=Speckle(0.3, 1.0, start=-6.0, stop=34.0), absorber=Absorber(6.0, axes=(0,))
     )
-    packet = GaussianPacket(center=(-18.0, 0.0), wavenumber=(k0, 0.0), width=4.0)
+    centre: Any = (-18.0, 0.0)
+    wavenumber: Any = (k0, 0.0)
+    packet = GaussianPacket(center=centre, wavenumber=wavenumber, width=4.0)
     result = ensemble(system, packet, 50.0, 0.1, realizations, seed=3, snapshots=[25.0, 50.0])
     kx, ky = result.k
     k_x, k_y = np.meshgrid(kx, ky, indexing="ij")

@@ -559,6 +559,9 @@ class Store:
         first = self._point(0).arrays() if len(layouts) == 1 and c["n"] else {}
         if first and first["times"].size:
             times = first["times"]
+            spatial: tuple[str, ...]
+            spectral: tuple[str, ...]
+            per_axis: tuple[str, ...]
             if "x" in first:
                 coords.update({"time": times, "x": first["x"], "k": first["k"]})
                 spatial, spectral, per_axis = ("x",), ("k",), ()
@@ -575,9 +578,9 @@ class Store:
             sizes = {name: np.asarray(coords[name]).size for name in profile_axes}
             positions = np.full(total, -1, dtype=np.int64)
             positions[stored] = np.arange(c["n"])
-            for name, extra, getter in _PROFILES:
+            for name, parts, getter in _PROFILES:
                 extra = tuple(
-                    axis for part in extra for axis in {"x": spatial, "k": spectral, "time": ("time",)}[part]
+                    axis for part in parts for axis in {"x": spatial, "k": spectral, "time": ("time",)}[part]
                 ) + (per_axis if name in _PER_AXIS_PROFILES else ())
                 lazy = _LazyProfiles(self, positions.reshape(shape), tuple(sizes[a] for a in extra), getter)
                 variables[name] = (dims + list(extra), _lazily(lazy))
