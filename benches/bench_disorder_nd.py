@@ -1,8 +1,10 @@
 """Disorder generation on 2D and 3D grids: ``mo.realize`` per site against numpy drawing the same model.
 
-``mo.realize`` builds its plan (FFT plans, filters, the speckle pupil) on every
-call, so its time is an upper bound on what a run that plans once spends per
-realization. numpy draws with its default generator (PCG64) and, for the
+``mo.realize`` builds its plan (FFT plans, filters, the speckle pupil) and a
+fresh output array on every call, so its time is an upper bound on what a run
+that plans once spends per realization: for the per-site models (box, white
+noise) the fresh array's page faults are most of it, and the ratio says
+little. numpy draws with its default generator (PCG64) and, for the
 correlated models, the same spectral method on the same periodic box as the
 core (rust/src/disorder/mesh.rs): the random Fourier amplitudes drawn directly,
 then one ``numpy.fft.ifftn``. Ratios are measured in one run. Run with
