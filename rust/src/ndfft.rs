@@ -1,15 +1,15 @@
 //! Fourier transforms on 1D, 2D and 3D grids: rustfft along contiguous rows,
-//! with blocked transposes between the axes.
+//! the other axes in cache-sized pieces.
 //!
-//! Arrays are in C order (axis 0 slowest). A transform of `d` axes runs `d`
-//! passes; each transforms the rows (the last axis of the current layout) and
-//! then rotates the layout, `(r..., n) -> (n, r...)`, a transpose of the
-//! `prod(r) x n` matrix, so that the next axis becomes contiguous. The split
-//! step never needs the natural layout in k space: it skips the last rotation
-//! (the "step layout", `d - 1` transposes each way) and keeps its kinetic
-//! factors in that layout. Observables use `forward_natural`, which makes all
-//! `d` rotations and so returns to C order. In 1D both layouts are the natural
-//! one and no transpose is made.
+//! Arrays are in C order (axis 0 slowest) and stay so: the last axis is
+//! transformed row by row in place; in 3D the middle axis plane by plane (each
+//! plane transposed into a work buffer, transformed, transposed back: a plane
+//! of 128 x 128 stays in cache); axis 0 in blocks of columns gathered
+//! into rows of the work buffer (`block`). The split step's kinetic factor (`kinetic`)
+//! multiplies each gathered block between its forward and inverse transform
+//! along axis 0, so that pass reads and writes the array once; its factors are
+//! kept in that block order (`step_layout`). In 1D it is one out-of-place
+//! transform there and back.
 
 use std::sync::Arc;
 
@@ -21,6 +21,13 @@ use crate::real::Real;
 /// Side of the square tiles of a transpose: 16 x 16 complex doubles are 4 kB,
 /// so that one tile of the source and one of the destination stay in L1.
 const TILE: usize = 16;
+
+/// Values gathered at once along axis 0: blocks of at least `MIN_BLOCK` columns
+/// (16 complex doubles are 256 contiguous bytes of each row), more when axis 0
+/// is short, so that a block holds about `BLOCK_VALUES` values (128 kB, in L2)
+/// and each row gives a longer contiguous read.
+const MIN_BLOCK: usize = 16;
+const BLOCK_VALUES: usize = 8192;
 
 /// The most axes a grid may have.
 pub const MAX_AXES: usize = 3;
@@ -66,63 +73,51 @@ impl<T: Real> Transforms<T> {
             .unwrap_or(0)
     }
 
-    /// The layouts the passes of a forward transform run in: `layouts[i]` is
-    /// the order of the original axes during pass `i` (its last axis is the
-    /// one transformed). The step layout is the last.
-    fn layouts(&self) -> Vec<Vec<usize>> {
-        let mut order: Vec<usize> = (0..self.shape.len()).collect();
-        let mut layouts = Vec::with_capacity(self.shape.len());
-        for _ in 0..self.shape.len() {
-            layouts.push(order.clone());
-            order.rotate_right(1);
-        }
-        layouts
+    /// The points of one plane across axis 0 (every point in 1D).
+    fn plane(&self) -> usize {
+        self.points() / self.shape[0]
     }
 
-    /// Forward transform (unnormalized) of `psi` into `spectrum`, in the step
-    /// layout. `psi` is used as work space and left undefined.
-    pub fn forward(
+    /// Columns per block along axis 0.
+    fn block(&self) -> usize {
+        (BLOCK_VALUES / self.shape[0]).max(MIN_BLOCK)
+    }
+
+    /// Transform the last axis (and in 3D the middle one) of `psi` in place,
+    /// forward or back; `work` holds a plane.
+    fn inner_axes(
         &self,
         psi: &mut [Complex<T>],
-        spectrum: &mut [Complex<T>],
+        work: &mut [Complex<T>],
         scratch: &mut [Complex<T>],
+        forward: bool,
     ) {
-        let layouts = self.layouts();
-        let passes = layouts.len();
-        for (pass, order) in layouts.iter().enumerate() {
-            let axis = order[passes - 1];
-            self.forward[axis].process_outofplace_with_scratch(psi, spectrum, scratch);
-            if pass + 1 < passes {
-                let cols = self.shape[axis];
-                transpose(spectrum, psi, self.points() / cols, cols);
+        let plans = if forward {
+            &self.forward
+        } else {
+            &self.inverse
+        };
+        let axes = self.shape.len();
+        let last = axes - 1;
+        if forward {
+            plans[last].process_with_scratch(psi, scratch);
+        }
+        if axes == 3 {
+            let (rows, cols) = (self.shape[1], self.shape[2]);
+            let work = &mut work[..rows * cols];
+            for plane in psi.chunks_exact_mut(rows * cols) {
+                transpose(plane, work, rows, cols);
+                plans[1].process_with_scratch(work, scratch);
+                transpose(work, plane, cols, rows);
             }
+        }
+        if !forward {
+            plans[last].process_with_scratch(psi, scratch);
         }
     }
 
-    /// Inverse transform (unnormalized) of `spectrum`, in the step layout, into
-    /// `psi`. `spectrum` is used as work space and left undefined.
-    pub fn inverse(
-        &self,
-        spectrum: &mut [Complex<T>],
-        psi: &mut [Complex<T>],
-        scratch: &mut [Complex<T>],
-    ) {
-        let layouts = self.layouts();
-        let passes = layouts.len();
-        for (pass, order) in layouts.iter().rev().enumerate() {
-            let axis = order[passes - 1];
-            self.inverse[axis].process_outofplace_with_scratch(spectrum, psi, scratch);
-            if pass + 1 < passes {
-                // Undo the rotation that led to this layout: `(n, r...) -> (r..., n)`.
-                let rows = self.shape[order[0]];
-                transpose(psi, spectrum, rows, self.points() / rows);
-            }
-        }
-    }
-
-    /// `psi <- F^-1 (factors * F psi)` with `factors` in the step layout; `work`
-    /// is work space of the grid's size. The last forward pass, the product and
-    /// the first inverse pass run row by row, each row staying in cache.
+    /// `psi <- F^-1 (factors * F psi)` with `factors` in `step_layout` order;
+    /// `work` is work space of the grid's size.
     pub fn kinetic(
         &self,
         psi: &mut [Complex<T>],
@@ -130,34 +125,25 @@ impl<T: Real> Transforms<T> {
         factors: &[Complex<T>],
         scratch: &mut [Complex<T>],
     ) {
-        let layouts = self.layouts();
-        let passes = layouts.len();
-        let n = self.points();
-        // Every forward pass but the last: rows, then the rotation, ending in `psi`.
-        for order in &layouts[..passes - 1] {
-            let axis = order[passes - 1];
-            self.forward[axis].process_outofplace_with_scratch(psi, work, scratch);
-            let cols = self.shape[axis];
-            transpose(work, psi, n / cols, cols);
+        if self.shape.len() == 1 {
+            self.forward[0].process_outofplace_with_scratch(psi, work, scratch);
+            T::multiply(work, factors);
+            self.inverse[0].process_outofplace_with_scratch(work, psi, scratch);
+            return;
         }
-        let last = layouts[passes - 1][passes - 1];
-        let row = self.shape[last];
-        for ((source, spectrum), factor) in psi
-            .chunks_exact_mut(row)
-            .zip(work.chunks_exact_mut(row))
-            .zip(factors.chunks_exact(row))
-        {
-            self.forward[last].process_outofplace_with_scratch(source, spectrum, scratch);
-            T::multiply(spectrum, factor);
-            self.inverse[last].process_outofplace_with_scratch(spectrum, source, scratch);
+        self.inner_axes(psi, work, scratch, true);
+        let (rows, plane) = (self.shape[0], self.plane());
+        let columns = self.block();
+        for first in (0..plane).step_by(columns) {
+            let width = columns.min(plane - first);
+            let block = &mut work[..rows * width];
+            gather(psi, block, rows, plane, first, width);
+            self.forward[0].process_with_scratch(block, scratch);
+            T::multiply(block, &factors[first * rows..(first + width) * rows]);
+            self.inverse[0].process_with_scratch(block, scratch);
+            scatter(block, psi, rows, plane, first, width);
         }
-        // The other inverse passes: undo each rotation, then the rows of the layout before it.
-        for pass in (1..passes).rev() {
-            let rows = self.shape[layouts[pass][0]];
-            transpose(psi, work, rows, n / rows);
-            let axis = layouts[pass - 1][passes - 1];
-            self.inverse[axis].process_outofplace_with_scratch(work, psi, scratch);
-        }
+        self.inner_axes(psi, work, scratch, false);
     }
 
     /// Forward transform (unnormalized) of `psi` into `out` in C order; `work`
@@ -174,26 +160,68 @@ impl<T: Real> Transforms<T> {
             self.forward[0].process_with_scratch(out, scratch);
             return;
         }
-        for order in self.layouts() {
-            let axis = order[order.len() - 1];
-            self.forward[axis].process_with_scratch(out, scratch);
-            let cols = self.shape[axis];
-            transpose(out, work, self.points() / cols, cols);
-            out.copy_from_slice(work);
+        self.inner_axes(out, work, scratch, true);
+        let (rows, plane) = (self.shape[0], self.plane());
+        let columns = self.block();
+        for first in (0..plane).step_by(columns) {
+            let width = columns.min(plane - first);
+            let block = &mut work[..rows * width];
+            gather(out, block, rows, plane, first, width);
+            self.forward[0].process_with_scratch(block, scratch);
+            scatter(block, out, rows, plane, first, width);
         }
     }
 
-    /// A table given in C order over k space, rearranged into the step layout.
+    /// A table given in C order over k space, in the order `kinetic` reads its
+    /// factors: the blocks of `block()` columns of axis 0, each column contiguous.
     pub fn step_layout<U: Copy>(&self, natural: &[U]) -> Vec<U> {
-        let mut table = natural.to_vec();
-        let mut other = natural.to_vec();
-        let layouts = self.layouts();
-        for order in &layouts[..layouts.len() - 1] {
-            let cols = self.shape[order[order.len() - 1]];
-            transpose(&table, &mut other, table.len() / cols, cols);
-            std::mem::swap(&mut table, &mut other);
+        if self.shape.len() == 1 {
+            return natural.to_vec();
+        }
+        let (rows, plane) = (self.shape[0], self.plane());
+        let mut table = Vec::with_capacity(natural.len());
+        let columns = self.block();
+        for first in (0..plane).step_by(columns) {
+            for column in first..(first + columns).min(plane) {
+                table.extend((0..rows).map(|row| natural[row * plane + column]));
+            }
         }
         table
+    }
+}
+
+/// Columns `first .. first + width` of the `rows x plane` matrix `source`, as
+/// `width` contiguous rows of `rows` values in `block`.
+fn gather<U: Copy>(
+    source: &[U],
+    block: &mut [U],
+    rows: usize,
+    plane: usize,
+    first: usize,
+    width: usize,
+) {
+    for row in 0..rows {
+        let line = &source[row * plane + first..row * plane + first + width];
+        for (column, &value) in line.iter().enumerate() {
+            block[column * rows + row] = value;
+        }
+    }
+}
+
+/// The inverse of `gather`.
+fn scatter<U: Copy>(
+    block: &[U],
+    target: &mut [U],
+    rows: usize,
+    plane: usize,
+    first: usize,
+    width: usize,
+) {
+    for row in 0..rows {
+        let line = &mut target[row * plane + first..row * plane + first + width];
+        for (column, value) in line.iter_mut().enumerate() {
+            *value = block[column * rows + row];
+        }
     }
 }
 
@@ -254,8 +282,14 @@ mod tests {
     }
 
     #[test]
-    fn natural_and_step_layouts_agree_with_the_definition() {
-        for shape in [vec![6], vec![4, 6], vec![3, 5, 4]] {
+    fn the_natural_transform_agrees_with_the_definition() {
+        for shape in [
+            vec![6],
+            vec![4, 6],
+            vec![3, 5, 4],
+            vec![5, 37],
+            vec![4, 5, 7],
+        ] {
             let plans = Transforms::<f64>::new(&shape);
             let n = plans.points();
             let x = sample(n);
@@ -270,30 +304,18 @@ mod tests {
                 .map(|(a, b)| (a - b).norm())
                 .fold(0.0, f64::max);
             assert!(gap < 1e-12, "{shape:?} natural {gap}");
-            let mut psi = x.clone();
-            let mut spectrum = vec![Complex64::default(); n];
-            plans.forward(&mut psi, &mut spectrum, &mut scratch);
-            let stepped = plans.step_layout(&expected);
-            let gap = spectrum
-                .iter()
-                .zip(&stepped)
-                .map(|(a, b)| (a - b).norm())
-                .fold(0.0, f64::max);
-            assert!(gap < 1e-12, "{shape:?} step layout {gap}");
-            // And back: the inverse of the step layout returns N x.
-            plans.inverse(&mut spectrum, &mut psi, &mut scratch);
-            let gap = psi
-                .iter()
-                .zip(&x)
-                .map(|(a, b)| (a / n as f64 - b).norm())
-                .fold(0.0, f64::max);
-            assert!(gap < 1e-12, "{shape:?} inverse {gap}");
         }
     }
 
     #[test]
     fn the_fused_kinetic_factor_is_the_transform_the_product_and_back() {
-        for shape in [vec![6], vec![4, 6], vec![3, 5, 4]] {
+        for shape in [
+            vec![6],
+            vec![4, 6],
+            vec![3, 5, 4],
+            vec![5, 37],
+            vec![4, 5, 7],
+        ] {
             let plans = Transforms::<f64>::new(&shape);
             let n = plans.points();
             let x = sample(n);
