@@ -80,7 +80,7 @@ ENSEMBLE = mo.System(
     absorber=mo.Absorber(10.0, axes=(0,)),
 )
 ENSEMBLE_PACKET = mo.GaussianPacket(center=(-10.0, 0.0), wavenumber=(1.0, 0.0), width=4.0)
-ENSEMBLE_STEPS = 20
+ENSEMBLE_STEPS = 100
 
 
 @pytest.mark.parametrize(("threads", "precision"), [(1, "double"), (2, "double"), (2, "single")])
