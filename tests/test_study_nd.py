@@ -116,3 +116,25 @@ def test_bad_per_axis_values_are_refused_with_their_line(change, message):
     with pytest.raises(StudyError, match=message) as error:
         parse_study(SLAB.replace(*change), "slab.toml")
     assert "slab.toml:" in str(error.value)
+
+
+def test_a_disorder_box_in_a_study_file_is_the_apis_box(tmp_path):
+    text = SLAB.replace(
+        '[[system.potential]]\nkind = "barrier"\nheight = 0.4\nleft = 0.0\nright = 2.0\n',
+        '[[system.disorder]]\nkind = "gaussian"\nrms = 0.1\ncorrelation_length = 2.0\n'
+        "start = [-5.0, -10.0]\nstop = [5.0, 10.0]\n",
+    ).split("[sweep]")[0]
+    store = mo.run_study(parse_study(text, "box.toml"), tmp_path / "box.mottle", progress=False, threads=2)
+    (point,) = store.points
+    grid = mo.Grid(points=(96, 64), length=(80.0, 56.0))
+    system = mo.System(
+        grid,
+        disorder=mo.GaussianDisorder(0.1, 2.0, start=(-5.0, -10.0), stop=(5.0, 10.0)),
+        absorber=mo.Absorber(10.0, axes=(0,)),
+    )
+    packet = mo.GaussianPacket(center=(-15.0, 0.0), wavenumber=(1.0, 0.2), width=(4.0, 3.0))
+    direct = mo.ensemble(
+        system, packet, 12.0, 0.05, 32, seed=point.seed, snapshots=[6.0, 12.0], detector=(-5.0, 5.0)
+    )
+    assert np.array_equal(point.result.samples["transmission"], direct.samples["transmission"])
+    assert np.array_equal(point.result.density, direct.density)
