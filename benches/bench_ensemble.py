@@ -6,16 +6,13 @@ for 2000 realizations against 50."""
 
 from __future__ import annotations
 
-import json
-import subprocess
-import sys
 import textwrap
 
 import numpy as np
 import pytest
 
 import mottle as mo
-from conftest import TIMINGS, figure, record
+from conftest import TIMINGS, figure, peak_bytes, record
 
 POINTS = 4096
 REALIZATIONS = 64
@@ -103,14 +100,6 @@ PEAK_SCRIPT = textwrap.dedent(
 )
 
 
-def peak_bytes(realizations: int) -> int:
-    out = subprocess.run(
-        [sys.executable, "-c", PEAK_SCRIPT, str(realizations)], capture_output=True, text=True
-    )
-    out.check_returncode()
-    return json.loads(out.stdout)
-
-
 def test_figures():
     core = TIMINGS["ensemble: mottle core, 2 thread(s)"]
     figure(
@@ -123,5 +112,5 @@ def test_figures():
     figure(
         "double / single (2 threads)", core / TIMINGS["ensemble: mottle core, 2 threads, single"], ">= 1.6"
     )
-    extra = (peak_bytes(2000) - peak_bytes(50)) / 2**20
+    extra = (peak_bytes(PEAK_SCRIPT, 2000) - peak_bytes(PEAK_SCRIPT, 50)) / 2**20
     figure("peak memory, 2000 minus 50 realizations (MiB)", extra, "<= 40")

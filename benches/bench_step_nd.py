@@ -6,16 +6,13 @@ ensemble for 2000 realizations against 50."""
 
 from __future__ import annotations
 
-import json
-import subprocess
-import sys
 import textwrap
 
 import numpy as np
 import pytest
 
 import mottle as mo
-from conftest import TIMINGS, figure, record
+from conftest import TIMINGS, figure, peak_bytes, record
 
 CASES = {
     "2D 512^2": ((512, 512), (200.0, 200.0), 20),
@@ -106,14 +103,6 @@ PEAK_SCRIPT = textwrap.dedent(
 )
 
 
-def peak_bytes(realizations: int) -> int:
-    out = subprocess.run(
-        [sys.executable, "-c", PEAK_SCRIPT, str(realizations)], capture_output=True, text=True
-    )
-    out.check_returncode()
-    return json.loads(out.stdout)
-
-
 def test_figures():
     for name, (_, _, steps) in CASES.items():
         core = (TIMINGS[f"{name}: core run of 3x"] - TIMINGS[f"{name}: core run of 1x"]) / (2 * steps)
@@ -134,6 +123,6 @@ def test_figures():
         two / TIMINGS["2D ensemble 256^2: 2 thread(s), single"],
         ">= 1.6",
     )
-    extra = (peak_bytes(2000) - peak_bytes(50)) / 2**20
+    extra = (peak_bytes(PEAK_SCRIPT, 2000) - peak_bytes(PEAK_SCRIPT, 50)) / 2**20
     figure("2D peak memory, 2000 minus 50 realizations (MiB)", extra, "<= 40")
     assert np.isfinite(extra)

@@ -24,6 +24,18 @@ def figure(label: str, value: float, target: str) -> None:
     FIGURES.append((label, value, target))
 
 
+def peak_bytes(script: str, realizations: int) -> int:
+    """Peak resident memory of a fresh interpreter running ``script`` (which prints its own
+    ``ru_maxrss`` in bytes as JSON) with ``realizations`` as its argument."""
+    import json
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-c", script, str(realizations)], capture_output=True, text=True)
+    out.check_returncode()
+    return json.loads(out.stdout)
+
+
 def machine() -> str:
     try:
         with open("/proc/cpuinfo") as info:

@@ -275,6 +275,9 @@ mod tests {
             .collect()
     }
 
+    /// 1D, 2D and 3D, with axis-0 blocks cut ragged.
+    const SHAPES: [&[usize]; 5] = [&[6], &[4, 6], &[3, 5, 4], &[5, 37], &[4, 5, 7]];
+
     fn sample(n: usize) -> Vec<Complex64> {
         (0..n)
             .map(|j| Complex64::new((0.37 * j as f64).sin(), (1.3 * j as f64 + 0.2).cos()))
@@ -283,13 +286,7 @@ mod tests {
 
     #[test]
     fn the_natural_transform_agrees_with_the_definition() {
-        for shape in [
-            vec![6],
-            vec![4, 6],
-            vec![3, 5, 4],
-            vec![5, 37],
-            vec![4, 5, 7],
-        ] {
+        for shape in SHAPES.map(<[usize]>::to_vec) {
             let plans = Transforms::<f64>::new(&shape);
             let n = plans.points();
             let x = sample(n);
@@ -309,13 +306,7 @@ mod tests {
 
     #[test]
     fn the_fused_kinetic_factor_is_the_transform_the_product_and_back() {
-        for shape in [
-            vec![6],
-            vec![4, 6],
-            vec![3, 5, 4],
-            vec![5, 37],
-            vec![4, 5, 7],
-        ] {
+        for shape in SHAPES.map(<[usize]>::to_vec) {
             let plans = Transforms::<f64>::new(&shape);
             let n = plans.points();
             let x = sample(n);
