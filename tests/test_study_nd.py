@@ -138,3 +138,52 @@ def test_a_disorder_box_in_a_study_file_is_the_apis_box(tmp_path):
     )
     assert np.array_equal(point.result.samples["transmission"], direct.samples["transmission"])
     assert np.array_equal(point.result.density, direct.density)
+
+
+def test_a_2d_study_survives_a_killed_worker(in_process, tmp_path):
+    # As tests/test_cli.py does in 1D: `mottle run --scheduler` on a cluster that loses a busy
+    # worker finishes with the in-process numbers.
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    from pathlib import Path
+
+    import dask
+    from distributed import Client, LocalCluster
+
+    study = tmp_path / "slab.toml"
+    study.write_text(SLAB)
+    script = Path(sys.executable).with_name("mottle")
+    command = [str(script)] if script.exists() else [sys.executable, "-m", "mottle.cli"]
+    with dask.config.set({"distributed.scheduler.allowed-failures": 10}):
+        cluster = LocalCluster(
+            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+        )
+    with cluster, Client(cluster) as client:
+        before = client.run(os.getpid)
+        store = tmp_path / "killed.mottle"
+        run = subprocess.Popen(
+            [*command, "run", str(study), "--store", str(store), "--scheduler", cluster.scheduler_address],
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+        )
+        deadline, victim = time.monotonic() + 120, None
+        while victim is None and time.monotonic() < deadline:
+            busy = [w for w, keys in client.processing().items() if any("mottle-point" in k for k in keys)]
+            if busy:
+                victim = sorted(busy)[0]
+            else:
+                time.sleep(0.01)
+        assert victim is not None and run.poll() is None, "no task was seen running"
+        os.kill(before[victim], signal.SIGKILL)
+        _, err = run.communicate(timeout=300)
+        assert run.returncode == 0, err
+        assert before[victim] not in client.run(os.getpid).values()
+    killed = mo.open_store(store)
+    for ours, theirs in zip(in_process.points, killed.points, strict=True):
+        a, b = ours.result.to_arrays(), theirs.result.to_arrays()
+        for name in a:
+            assert np.array_equal(a[name], b[name], equal_nan=True), name
