@@ -187,3 +187,16 @@ def test_a_2d_study_survives_a_killed_worker(in_process, tmp_path):
         a, b = ours.result.to_arrays(), theirs.result.to_arrays()
         for name in a:
             assert np.array_equal(a[name], b[name], equal_nan=True), name
+
+
+def test_the_2d_example_loads_as_the_demos_slab():
+    from pathlib import Path
+
+    study = mo.load_study(Path(__file__).resolve().parents[1] / "examples" / "speckled_slab_2d.toml")
+    assert len(study.points) == 2
+    from mottle.studies.study import build_packet, build_system
+
+    resolved = study.points[1].resolved
+    system = build_system(resolved, {})
+    assert system.grid.shape == (160, 144) and system.absorber.axes == (0,)
+    assert build_packet(resolved, system).wavenumber == (2 * np.pi * 13 / 80.0, 0.0)
