@@ -123,10 +123,6 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
         ("ground_state", lambda: mo.ground_state(mo.System(BOX))),
         ("transfer-matrix", lambda: mo.lyapunov(mo.System(BOX), 1.0, 2)),
         ("transfer-matrix", lambda: mo.transmission_spectrum(mo.System(BOX), [1.0])),
-        (
-            "the time-dependent Kicked term",
-            lambda: mo.System(BOX, potential=mo.Harmonic(1.0) + mo.Kicked(mo.Cosine(1.0, 1.0), 1.0)),
-        ),
         ("RandomPacket", lambda: mo.RandomPacket(mo.Uniform(-1.0, 1.0), 1.0, 3.0).validate(BOX)),
         (r"Grid\.x", lambda: BOX.x),
         (r"Grid\.shift", lambda: BOX.shift(0.5)),

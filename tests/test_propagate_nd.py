@@ -277,3 +277,69 @@ def test_a_disordered_2d_ensemble_member_is_the_single_run_of_its_index():
     assert 0.1 < result.transmission.mean < 0.99 and result.reflection.mean > 1e-3
     # Different realizations differ.
     assert np.ptp(result.samples["transmission"]) > 1e-3
+
+
+def _outer(first, second):
+    return np.multiply.outer(first, second)
+
+
+@pytest.mark.parametrize(
+    ("along_x", "along_y"),
+    [
+        # A kicked rotor along x (hbar_eff = 1.3, K = 2), free along y.
+        (lambda: mo.Kicked(mo.Cosine(2.0, 1.0), 1.0), None),
+        # A trap switched off at t = 1.5 along both axes, two frequencies.
+        (lambda: mo.Switched(mo.Harmonic(0.7), off=1.5), lambda: mo.Switched(mo.Harmonic(0.4), off=1.5)),
+        # A modulated standing wave along x.
+        (lambda: mo.Modulated(mo.Cosine(0.8, 2.0), 0.5, 3.0, 0.2), None),
+    ],
+)
+def test_time_dependent_terms_in_2d_are_the_product_of_two_1d_runs(along_x, along_y):
+    # A separable Hamiltonian and a product state: the split step factorizes exactly, so the 2D run is
+    # the outer product of the 1D runs along each axis (common practice; the 1D terms are checked in
+    # tests/test_timedep.py), to rounding.
+    model = mo.Continuum(hbar=1.3)
+    line_x, line_y = mo.Grid(128, 2 * math.pi * 4), mo.Grid(64, 30.0)
+    box = mo.Grid(points=(128, 64), length=(2 * math.pi * 4, 30.0))
+    term = along_x()
+    if along_y is None:
+        potential_2d, system_y = term, mo.System(line_y, model=model)
+    else:
+        other = along_y()
+        # The same terms on the box: each switched trap along its own axis (frequency 0 elsewhere is
+        # not allowed, so the two 1D traps become one 2D trap of two frequencies).
+        potential_2d = mo.Switched(mo.Harmonic((0.7, 0.4)), off=1.5)
+        system_y = mo.System(line_y, model=model, potential=other)
+    x_run = mo.propagate(
+        mo.System(line_x, model=model, potential=term),
+        mo.GaussianPacket(1.0, 0.5, 1.4),
+        3.0,
+        0.02,
+        snapshots=[1.0, 3.0],
+    )
+    y_run = mo.propagate(system_y, mo.GaussianPacket(-1.0, 0.3, 1.7), 3.0, 0.02, snapshots=[1.0, 3.0])
+    packet = mo.GaussianPacket(center=(1.0, -1.0), wavenumber=(0.5, 0.3), width=(1.4, 1.7))
+    run = mo.propagate(
+        mo.System(box, model=model, potential=potential_2d), packet, 3.0, 0.02, snapshots=[1.0, 3.0]
+    )
+    assert np.max(np.abs(run.psi - _outer(x_run.psi, y_run.psi))) < 1e-12
+    for s in range(2):
+        assert np.max(np.abs(run.snapshots[s] - _outer(x_run.snapshots[s], y_run.snapshots[s]))) < 1e-12
+    assert np.allclose(run.momentum_squared[:, 0], x_run.momentum_squared, rtol=1e-11, atol=0)
+
+
+def test_a_drawn_kick_phase_in_2d_is_keyed_by_seed_and_index():
+    box = mo.Grid(points=(64, 32), length=(2 * math.pi, 12.0))
+    system = mo.System(
+        box,
+        model=mo.Continuum(hbar=1.0),
+        potential=mo.Kicked(mo.Cosine(1.5, 1.0, phase=mo.Uniform(0.0, 2 * math.pi)), 1.0),
+    )
+    packet = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(0.0, 0.0), width=(0.35, 0.7))
+    result = mo.ensemble(system, packet, 5.0, 0.25, 18, seed=4, snapshots=[5.0])
+    for index in (0, 17):
+        run = mo.propagate(system, packet, 5.0, 0.25, seed=4, index=index, snapshots=[5.0])
+        assert np.array_equal(result.samples["momentum_squared"][index], run.momentum_squared)
+    # The phases differ between realizations: so do the momenta along x, not along y.
+    spread = np.ptp(result.samples["mean_momentum"][:, 0, :], axis=0)
+    assert spread[0] > 1e-3 and spread[1] < 1e-12

@@ -360,14 +360,9 @@ PACKET = mo.GaussianPacket(center=(0.0, 0.0), wavenumber=(1.0, 0.0), width=1.0)
         ),
         # What stays 1D, with the shared message.
         (
-            lambda: mo.System(BOX, potential=mo.Modulated(mo.Harmonic(1.0), 0.1, 1.0)),
+            lambda: mo.System(mo.Grid(points=(32, 32), length=(8.0, 8.0), quasimomentum=0.25)),
             P,
-            "the time-dependent Modulated term is 1D only for now",
-        ),
-        (
-            lambda: mo.System(BOX, potential=mo.Switched(mo.Harmonic(1.0), 0.0, 1.0)),
-            P,
-            "the time-dependent Switched term is 1D only for now",
+            "a twisted boundary",
         ),
         (lambda: mo.System(BOX, absorber=mo.Absorber(0.5)), P, "grid spacings along axis 0"),
         (

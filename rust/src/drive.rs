@@ -210,7 +210,16 @@ impl Profile {
         }
     }
 
-    fn realize(&self, points: usize, dx: f64, start: f64, stream: &mut Stream) -> Vec<f64> {
+    /// The values at the grid's points: `points` in all, `transverse` of them
+    /// (1 in 1D) at each position `start + i dx` along axis 0 (C order).
+    fn realize(
+        &self,
+        points: usize,
+        dx: f64,
+        start: f64,
+        transverse: usize,
+        stream: &mut Stream,
+    ) -> Vec<f64> {
         match self {
             Profile::Table(values) => values.clone(),
             Profile::Cosine {
@@ -221,7 +230,7 @@ impl Profile {
                 let phase = phase.sample(stream);
                 (0..points)
                     .map(|j| {
-                        let x = start + j as f64 * dx;
+                        let x = start + (j / transverse) as f64 * dx;
                         amplitude * (wavenumber * x + phase).cos()
                     })
                     .collect()
@@ -271,8 +280,18 @@ impl Drive {
         Ok(())
     }
 
-    /// The drive of realization `index` of `seed` on the grid `(points, dx, start)`.
-    pub fn realize(&self, points: usize, dx: f64, start: f64, seed: u64, index: u64) -> Realized {
+    /// The drive of realization `index` of `seed` on the grid of `points`
+    /// points, `transverse` of them (1 in 1D) at each position `start + i dx`
+    /// along axis 0. A cosine profile varies along axis 0; a twist needs 1D.
+    pub fn realize(
+        &self,
+        points: usize,
+        dx: f64,
+        start: f64,
+        transverse: usize,
+        seed: u64,
+        index: u64,
+    ) -> Realized {
         let mut stream = Stream::new(seed, DRIVE_PURPOSE, index);
         let twist = self.twist.map(|(draw, dispersion)| {
             // A uniform draw on [0, 1) stays below 1.
@@ -289,7 +308,9 @@ impl Drive {
             .kicks
             .iter()
             .map(|kick| {
-                let values = kick.profile.realize(points, dx, start, &mut stream);
+                let values = kick
+                    .profile
+                    .realize(points, dx, start, transverse, &mut stream);
                 let strength = kick.modulation.map(|m| m.realize(&mut stream));
                 RealizedKick {
                     values,
@@ -303,7 +324,9 @@ impl Drive {
             .terms
             .iter()
             .map(|term| {
-                let values = term.profile.realize(points, dx, start, &mut stream);
+                let values = term
+                    .profile
+                    .realize(points, dx, start, transverse, &mut stream);
                 let strength = match term.envelope {
                     Envelope::Modulated(modulation) => modulation.realize(&mut stream),
                     Envelope::Switched { on, off } => Strength::Switched { on, off },
@@ -371,9 +394,9 @@ mod tests {
             )),
         };
         drive.validate(8).unwrap();
-        let a = drive.realize(8, 0.5, 0.0, 7, 3);
-        let b = drive.realize(8, 0.5, 0.0, 7, 3);
-        let c = drive.realize(8, 0.5, 0.0, 7, 4);
+        let a = drive.realize(8, 0.5, 0.0, 1, 7, 3);
+        let b = drive.realize(8, 0.5, 0.0, 1, 7, 3);
+        let c = drive.realize(8, 0.5, 0.0, 1, 7, 4);
         assert_eq!(a, b);
         assert_ne!(a, c);
         let beta = a.twist.as_ref().unwrap().0;

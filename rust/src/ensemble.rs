@@ -211,6 +211,9 @@ fn run_chunk<T: Real>(
     let k = axis_wavenumbers(&shared.setup);
     let scale = momentum_scale(&shared.setup);
     let axes = shared.setup.shape.len();
+    // Axis 0's spacing and first position, and the points at each of its positions.
+    let axis0 = (shared.setup.spacing[0], shared.setup.origin[0]);
+    let transverse = n / shared.setup.shape[0];
     let mut record: Vec<Complex64> = Vec::with_capacity(if spec.spectrum.is_some() {
         2 * (spec.steps + 1)
     } else {
@@ -227,7 +230,7 @@ fn run_chunk<T: Real>(
         stepper.prepare(&potential)?;
         let drive = spec
             .drive
-            .realize(n, grid.dx, grid.start, spec.seed, index as u64);
+            .realize(n, axis0.0, axis0.1, transverse, spec.seed, index as u64);
         stepper.set_drive(&drive)?;
         chunk
             .quasimomentum

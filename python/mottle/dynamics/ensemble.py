@@ -369,7 +369,7 @@ def plan(
     if spectrum not in (None, True, False):
         raise InvalidTypeError(f"spectrum must be None, True or False, got {spectrum!r}")
     if nd.is_box(system):
-        nd.warn_if_coarse(system, first, arguments.step, realize(system, seed, 0))
+        nd.warn_if_coarse(system, first, arguments.step, felt_potential(system, realize(system, seed, 0)))
         spectrum = None
     else:
         warn_if_coarse(system, first, arguments.step, felt_potential(system, realize(system, seed, 0)))

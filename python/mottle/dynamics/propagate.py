@@ -453,10 +453,11 @@ def prepare_single_run(system, packet, duration, step, order, seed, index, snaps
     potential = realize(system, seed, index)
     from .drive import felt_potential
 
+    felt = felt_potential(system, potential)
     if nd.is_box(system):
-        nd.warn_if_coarse(system, packet, arguments.step, potential)
+        nd.warn_if_coarse(system, packet, arguments.step, felt)
     else:
-        warn_if_coarse(system, packet, arguments.step, felt_potential(system, potential))
+        warn_if_coarse(system, packet, arguments.step, felt)
     return packet, arguments, potential
 
 

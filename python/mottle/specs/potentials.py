@@ -299,7 +299,7 @@ class TimeDependent(Potential):
         return np.asarray(
             sum(
                 (_static_values(term, grid, model) for term in _terms(self._shape())),
-                np.zeros(grid.points),
+                np.zeros(grid.shape),
             ),
             dtype=float,
         )
@@ -316,10 +316,9 @@ class TimeDependent(Potential):
                 f"{type(self).__name__}: a drawn Cosine phase works for a lone Cosine profile; "
                 "give each drawn cosine its own time-dependent term"
             )
-        return _requests.table_profile(self.profile(grid, model))
+        return _requests.table_profile(np.ravel(self.profile(grid, model)))
 
     def validate(self, grid):
-        _checks.one_dimensional(f"the time-dependent {type(self).__name__} term", grid)
         for term in _terms(self._shape()):
             if isinstance(term, Cosine):
                 continue
@@ -329,7 +328,7 @@ class TimeDependent(Potential):
 def _static_values(term: Potential, grid, model) -> np.ndarray:
     if isinstance(term, Cosine) and is_drawn(term.phase):
         phase: Any = term.phase
-        return term.amplitude * np.cos(term.wavenumber * grid.x + phase.middle())
+        return Cosine(term.amplitude, term.wavenumber, phase.middle()).values(grid, model)
     return term.values(grid, model)
 
 

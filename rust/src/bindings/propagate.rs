@@ -220,7 +220,11 @@ fn propagate_one<'py>(
     let absorption = absorption.as_array().to_vec();
     let potential = potential.as_array().to_vec();
     let psi = psi.as_array().to_vec();
-    let dx = setup.dx;
+    // Axis 0 (the line in 1D): its spacing, first position and the points at each of its positions.
+    // (Unchecked yet: `Setup::validate` refuses a shape that does not hold the points.)
+    let dx = setup.spacing.first().copied().unwrap_or(setup.dx);
+    let start = setup.origin.first().copied().unwrap_or(setup.start);
+    let transverse = setup.points / setup.shape.first().copied().unwrap_or(1).max(1);
     let prepared = (|| {
         let classical = match &run.classical {
             Some(start) => Some((start.position, start.momentum, setup.model.kinetic(dx)?)),
@@ -229,7 +233,7 @@ fn propagate_one<'py>(
         let realized = match drive {
             Some((drive, seed, index)) => drive
                 .drive(setup.model.kinetic(dx)?, setup.points)?
-                .realize(setup.points, dx, setup.start, seed, index),
+                .realize(setup.points, dx, start, transverse, seed, index),
             None => Realized::default(),
         };
         let setup = setup.setup(absorption)?;
