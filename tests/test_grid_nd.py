@@ -120,7 +120,6 @@ PACKET = mo.GaussianPacket(center=0.0, wavenumber=1.0, width=3.0)
     ("what", "call"),
     [
         ("classical_ensemble", lambda: mo.classical_ensemble(mo.System(BOX), PACKET, 1.0, 0.1, 10)),
-        ("ground_state", lambda: mo.ground_state(mo.System(BOX))),
         ("transfer-matrix", lambda: mo.lyapunov(mo.System(BOX), 1.0, 2)),
         ("transfer-matrix", lambda: mo.transmission_spectrum(mo.System(BOX), [1.0])),
         ("RandomPacket", lambda: mo.RandomPacket(mo.Uniform(-1.0, 1.0), 1.0, 3.0).validate(BOX)),

@@ -296,6 +296,8 @@ class _Drive(TypedDict):
 class _Ground(TypedDict):
     points: int
     dx: float
+    shape: list[int]
+    spacing: list[float]
     model: _Model
     nonlinearity: float
     tolerance: float

@@ -346,9 +346,12 @@ def drive(system: System, step: float, steps: int) -> _Drive | None:
 def ground(system: System, tolerance: float, max_steps: int) -> _Ground:
     """A ground-state search: grid, model, nonlinearity and the stopping rule."""
     grid = system.grid
+    spacing = [float(d) for d in np.atleast_1d(grid.dx)]
     return {
-        "points": int(grid.points),
-        "dx": float(grid.dx),
+        "points": int(grid.size),
+        "dx": float(np.prod(spacing)),
+        "shape": [int(n) for n in grid.shape],
+        "spacing": spacing,
         "model": model(system.model),
         "nonlinearity": float(system.nonlinearity),
         "tolerance": float(tolerance),

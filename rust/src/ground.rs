@@ -31,7 +31,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use num_complex::Complex64;
 
 use crate::error::{invalid, CoreError};
-use crate::stepper::Plans;
+use crate::ndfft::Transforms;
 
 /// Imaginary-time steps between two residual checks.
 const CHECK_STEPS: usize = 16;
@@ -58,7 +58,10 @@ const CANCEL_POLL_CG: usize = 16;
 /// What defines the problem.
 #[derive(Debug, Clone)]
 pub struct Problem {
+    /// The volume element (the spacing in 1D).
     pub dx: f64,
+    /// Points per axis (one entry in 1D; C order on a 2D/3D grid).
+    pub shape: Vec<usize>,
     pub hbar: f64,
     /// Kinetic energy at each wavenumber, in FFT order (even in k).
     pub kinetic: Vec<f64>,
@@ -117,6 +120,15 @@ impl Problem {
         let n = self.kinetic.len();
         if n < 2 {
             return invalid(format!("points must be >= 2, got {n}"));
+        }
+        if !(1..=crate::ndfft::MAX_AXES).contains(&self.shape.len())
+            || self.shape.contains(&0)
+            || self.shape.iter().product::<usize>() != n
+        {
+            return invalid(format!(
+                "grid shape {:?} must have 1 to 3 axes holding the {n} points",
+                self.shape
+            ));
         }
         if self.potential.len() != n || initial.len() != n {
             return invalid(format!(
@@ -181,7 +193,7 @@ impl Measure {
 /// The FFT plans, the shifted tables and the buffers.
 struct Work<'a> {
     problem: &'a Problem,
-    plans: Plans<f64>,
+    plans: Transforms<f64>,
     complex: Vec<Complex64>,
     spectrum: Vec<Complex64>,
     scratch: Vec<Complex64>,
@@ -196,7 +208,7 @@ struct Work<'a> {
 impl<'a> Work<'a> {
     fn new(problem: &'a Problem) -> Self {
         let n = problem.kinetic.len();
-        let plans = Plans::<f64>::new(n);
+        let plans = Transforms::<f64>::new(&problem.shape);
         let zero = Complex64::new(0.0, 0.0);
         let scratch = vec![zero; plans.scratch_len()];
         let min = |v: &[f64]| v.iter().copied().fold(f64::INFINITY, f64::min);
@@ -227,17 +239,10 @@ impl<'a> Work<'a> {
         for (z, &v) in self.complex.iter_mut().zip(f) {
             *z = Complex64::new(v, 0.0);
         }
-        self.plans.forward.process_outofplace_with_scratch(
+        self.plans.filter(
             &mut self.complex,
             &mut self.spectrum,
-            &mut self.scratch,
-        );
-        for (z, &t) in self.spectrum.iter_mut().zip(table) {
-            *z *= t;
-        }
-        self.plans.inverse.process_outofplace_with_scratch(
-            &mut self.spectrum,
-            &mut self.complex,
+            table,
             &mut self.scratch,
         );
         for (o, z) in out.iter_mut().zip(&self.complex) {
@@ -650,6 +655,7 @@ mod tests {
         };
         Problem {
             dx,
+            shape: vec![points],
             hbar: 1.0,
             kinetic: free.kinetic_table(points, dx),
             potential: (0..points)

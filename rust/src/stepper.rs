@@ -7,10 +7,8 @@
 //! a kinetic factor multiplies `FFT(psi)` by `exp(-i T(k) f h / hbar)`.
 
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
 
 use num_complex::{Complex, Complex64};
-use rustfft::{Fft, FftPlanner};
 
 use crate::drive::{Realized, RealizedKick, Strength};
 use crate::error::{invalid, CoreError};
@@ -114,34 +112,6 @@ impl Setup {
             return invalid("absorption must be >= 0 everywhere");
         }
         Ok(())
-    }
-}
-
-/// FFT plans of one size, shared by every thread.
-pub struct Plans<T: Real> {
-    pub forward: Arc<dyn Fft<T>>,
-    pub inverse: Arc<dyn Fft<T>>,
-}
-
-impl<T: Real> Plans<T> {
-    pub fn new(points: usize) -> Self {
-        let mut planner = FftPlanner::<T>::new();
-        Plans {
-            forward: planner.plan_fft_forward(points),
-            inverse: planner.plan_fft_inverse(points),
-        }
-    }
-
-    pub fn scratch_len(&self) -> usize {
-        [
-            self.forward.get_inplace_scratch_len(),
-            self.inverse.get_inplace_scratch_len(),
-            self.forward.get_outofplace_scratch_len(),
-            self.inverse.get_outofplace_scratch_len(),
-        ]
-        .into_iter()
-        .max()
-        .unwrap_or(0)
     }
 }
 

@@ -54,11 +54,12 @@ def initial_guess(system: System, potential: np.ndarray) -> np.ndarray:
     ``g > 0`` and it spans at least 16 points, else the uniform state (both positive, so both
     overlap the positive ground state)."""
     grid, g = system.grid, system.nonlinearity
-    uniform = np.ones(grid.points)
+    uniform = np.ones(grid.shape)
     if g <= 0.0:
         return uniform
     floor = float(np.min(potential))
-    mass = lambda mu: float(np.sum(np.maximum(mu - potential, 0.0))) * grid.dx / g  # noqa: E731
+    volume = float(np.prod(np.atleast_1d(grid.dx)))  # the volume element (dx in 1D)
+    mass = lambda mu: float(np.sum(np.maximum(mu - potential, 0.0))) * volume / g  # noqa: E731
     low, high = floor, floor + 1.0
     while mass(high) < 1.0 and high - floor < 1e300:
         high = floor + 2.0 * (high - floor)
@@ -86,7 +87,11 @@ def _check_confinement(system: System, psi: np.ndarray, tolerance: float) -> Non
     """Refuse a state the box holds; warn where its edges or its spectrum's top are not negligible."""
     density = np.abs(psi) ** 2
     peak = float(density.max())
-    edge = max(float(density[0]), float(density[-1])) / peak
+    if density.ndim == 1:
+        edge = max(float(density[0]), float(density[-1])) / peak
+    else:  # the densest point on any face of the box
+        faces = [np.take(density, end, axis=a) for a in range(density.ndim) for end in (0, -1)]
+        edge = max(float(face.max()) for face in faces) / peak
     if edge > limits.GROUND_EDGE_DENSITY:
         raise InvalidParameterError(
             f"the ground state keeps {edge:.2g} of its peak density at the box edges "
@@ -100,9 +105,18 @@ def _check_confinement(system: System, psi: np.ndarray, tolerance: float) -> Non
             UnderResolvedWarning,
             stacklevel=3,
         )
-    spectrum = np.abs(np.fft.fft(psi)) ** 2
-    k = np.abs(np.asarray(system.grid.k))
-    top = spectrum[k >= 0.75 * float(k.max())].max() / float(spectrum.max())
+    if psi.ndim == 1:
+        spectrum = np.abs(np.fft.fft(psi)) ** 2
+        k = np.abs(np.asarray(system.grid.k))
+        top = spectrum[k >= 0.75 * float(k.max())].max() / float(spectrum.max())
+    else:  # the top quarter of the wavenumbers along any axis
+        spectrum = np.abs(np.fft.fftn(psi)) ** 2
+        grids = np.meshgrid(*(np.abs(axis) for axis in system.grid.k), indexing="ij")
+        near = np.zeros(psi.shape, dtype=bool)
+        for a, along in enumerate(grids):
+            near |= along >= 0.75 * float(np.max(np.abs(system.grid.k[a])))
+        k = np.asarray([float(np.max(np.abs(axis))) for axis in system.grid.k])
+        top = spectrum[near].max() / float(spectrum.max())
     if top > tolerance:
         warnings.warn(
             f"the ground state's momentum density reaches {top:.2g} of its peak in the top quarter of the "
@@ -142,11 +156,11 @@ def ground_state(
     above ``tolerance``. A search that does not converge within ``max_steps`` imaginary-time
     steps, or that stalls at the grid's rounding floor (about ``eps * rms(T)``, so over-resolved
     grids cannot reach tiny tolerances), raises :class:`~mottle.MottleError` saying how far it got.
-    Time-dependent terms and twisted boundaries are refused. Ctrl-C stops it.
+    Time-dependent terms and twisted boundaries are refused. Ctrl-C stops it. On a 2D/3D grid the
+    state has the grid's shape, ``dx`` above is the volume element and the edges are the box's faces.
     """
     if not isinstance(system, System):
         raise InvalidTypeError(f"system must be a mottle.System, got {type(system).__name__}")
-    _checks.one_dimensional("ground_state", system.grid)
     if system.absorber is not None:
         raise InvalidParameterError(
             "ground_state needs a closed system: this one has absorbers, which remove probability; "
@@ -178,7 +192,9 @@ def ground_state(
     start = _start(system, initial, potential)
     if not np.any(start):
         raise InvalidParameterError("initial state is zero everywhere; it cannot seed the search")
-    out = _core.ground_state_of(_requests.ground(system, tolerance, max_steps), potential, start)
+    out = _core.ground_state_of(
+        _requests.ground(system, tolerance, max_steps), np.ravel(potential), np.ravel(start)
+    )
     got = (
         f"residual ||H psi - mu psi|| = {out['residual']:.3g} ({out['residual'] / out['scale']:.3g} of the "
         f"state's energy scale {out['scale']:.4g}; tolerance {tolerance:g}) after {out['steps']} "
@@ -194,6 +210,6 @@ def ground_state(
             f"machine epsilon is {floor:.2g} of the energy scale: use tolerance >= "
             f"{10 ** math.ceil(math.log10(10 * floor)):g} or fewer points"
         )
-    psi = np.asarray(out["psi"])
+    psi = np.asarray(out["psi"]).reshape(system.grid.shape)
     _check_confinement(system, psi, tolerance)
     return GroundState(psi.astype(np.complex128), out)

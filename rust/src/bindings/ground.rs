@@ -16,6 +16,9 @@ request! {
     pub(crate) struct GroundRequest("ground state") {
         points: usize,
         dx: f64,
+        /// Points and spacing per axis (one entry in 1D); `dx` is then the volume element.
+        shape: Vec<usize>,
+        spacing: Vec<f64>,
         model: ModelRequest,
         nonlinearity: f64,
         tolerance: f64,
@@ -27,10 +30,25 @@ impl GroundRequest {
     /// The problem, its kinetic table from the model (`Dispersion::kinetic_table`), and the settings.
     fn problem(&self, potential: Vec<f64>) -> Result<(Problem, Settings), CoreError> {
         let dispersion = self.model.medium(self.dx)?.dispersion;
+        let kinetic = if self.shape.len() > 1 {
+            for &dx in &self.spacing {
+                self.model.medium(dx)?;
+            }
+            if self.spacing.len() != self.shape.len() {
+                return Err(CoreError::InvalidInput(format!(
+                    "grid shape {:?} and spacing {:?} must have the same axes",
+                    self.shape, self.spacing
+                )));
+            }
+            dispersion.kinetic_table_nd(&self.shape, &self.spacing)
+        } else {
+            dispersion.kinetic_table(self.points, self.dx)
+        };
         let problem = Problem {
             dx: self.dx,
+            shape: self.shape.clone(),
             hbar: self.model.hbar(),
-            kinetic: dispersion.kinetic_table(self.points, self.dx),
+            kinetic,
             potential,
             nonlinearity: self.nonlinearity,
         };
