@@ -374,7 +374,7 @@ def test_the_examples_load():
     assert isinstance(system.potential, mo.Switched) and system.potential.off == 2.0
 
 
-def test_a_kicked_rotor_study_at_quantum_resonance_through_mottle_run_and_report(tmp_path):
+def test_a_kicked_rotor_study_at_quantum_resonance_through_mottle_run_and_report(tmp_path, capsys):
     from mottle import cli
     from mottle.cli.report_drive import momentum_squared_figure
 
@@ -392,7 +392,12 @@ def test_a_kicked_rotor_study_at_quantum_resonance_through_mottle_run_and_report
     (tmp_path / "rotor.toml").write_text(text)
     store = tmp_path / "rotor.mottle"
     assert cli.main(["run", str(tmp_path / "rotor.toml"), "--store", str(store), "--threads", "1"]) == 0
+    # No detector: each point's line gives <p^2> at the last snapshot, not T = nan.
+    printed = [line for line in capsys.readouterr().out.splitlines() if line.startswith("point ")]
+    assert len(printed) == 2 and all("<p^2> = " in line and "T = " not in line for line in printed)
+    assert "<p^2> = 1250 ± " in printed[1] and f"at t = {kicks}," in printed[1]  # 2.5^2 20^2 / 2
     assert cli.main(["report", str(store), "--out", str(tmp_path / "report")]) == 0
+    assert not list((tmp_path / "report").glob("transmission_vs_*.png"))  # no T to draw
     opened = mo.open_store(store)
     t = np.arange(1, kicks + 1, dtype=float)
     for point in opened.points:

@@ -447,9 +447,11 @@ def figures(store: Store, table=None, fits: list[LengthSeries] | None = None) ->
     drawn when the store holds what it shows."""
     table = store.table() if table is None else table
     names = short_names(store.sweep)
+    # No detector (a kicked rotor, a released condensate): no T to draw.
+    counted = "transmission_mean" in table and bool(np.isfinite(table["transmission_mean"]).any())
     out: list[tuple[str, Any]] = [
         (f"transmission_vs_{_file_name(names[p])}.png", transmission_figure(store, p, table))
-        for p in swept_numbers(store)
+        for p in (swept_numbers(store) if counted else [])
     ]
     fits = localization_fits(store, table) if fits is None else fits
     if fits:

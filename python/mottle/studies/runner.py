@@ -234,17 +234,28 @@ class _Display(_Silent):
 
 
 def summary_line(point: StudyPoint, total: int, result, wall_time: float, names=None) -> str:
-    """``point 3/6 [stop=50, wavenumber=1]: T = 0.12 ± 0.004, <ln T> = -2.3 ± 0.05 (256 runs, 12 s)``."""
+    """``point 3/6 [stop=50, wavenumber=1]: T = 0.12 ± 0.004, <ln T> = -2.3 ± 0.05 (256 runs, 12 s)``.
+
+    A point without a detector (no disorder, none given: a kicked rotor, a released condensate) has no
+    T or R; its line gives ``<p^2>`` at the last snapshot (when there is one) and the norm instead."""
     transmission = result.transmission
+    head = f"point {point.index + 1}/{total} [{point.label(names)}]: "
+    tail = f"({result.count} runs, {wall_time:.3g} s)"
+    if math.isnan(transmission.mean):
+        parts = []
+        if len(result.times):
+            last = result.momentum_squared[-1]
+            parts.append(f"<p^2> = {last.mean:.4g} ± {last.stderr:.2g} at t = {result.times[-1]:.4g}")
+        parts.append(f"norm = {result.norm.mean:.6g}")
+        return head + ", ".join(parts) + " " + tail
     log = (
         ""
         if math.isnan(transmission.log_mean)
         else f", <ln T> = {transmission.log_mean:.4g} ± {transmission.log_stderr:.2g}"
     )
     return (
-        f"point {point.index + 1}/{total} [{point.label(names)}]: T = {transmission.mean:.4g} ± "
-        f"{transmission.stderr:.2g}{log}, R = {result.reflection.mean:.4g} "
-        f"({result.count} runs, {wall_time:.3g} s)"
+        f"{head}T = {transmission.mean:.4g} ± "
+        f"{transmission.stderr:.2g}{log}, R = {result.reflection.mean:.4g} {tail}"
     )
 
 
