@@ -116,6 +116,27 @@ impl<T: Real> Transforms<T> {
         }
     }
 
+    /// Axis 0 in blocks of columns: each block gathered from `psi` into rows of
+    /// `work`, handed to `each` (with its first column and the scratch), then
+    /// scattered back.
+    fn along_axis0(
+        &self,
+        psi: &mut [Complex<T>],
+        work: &mut [Complex<T>],
+        scratch: &mut [Complex<T>],
+        mut each: impl FnMut(usize, &mut [Complex<T>], &mut [Complex<T>]),
+    ) {
+        let (rows, plane) = (self.shape[0], self.plane());
+        let columns = self.block();
+        for first in (0..plane).step_by(columns) {
+            let width = columns.min(plane - first);
+            let block = &mut work[..rows * width];
+            gather(psi, block, rows, plane, first, width);
+            each(first, block, scratch);
+            scatter(block, psi, rows, plane, first, width);
+        }
+    }
+
     /// `psi <- F^-1 (factors * F psi)` with `factors` in `step_layout` order;
     /// `work` is work space of the grid's size.
     pub fn kinetic(
@@ -132,17 +153,12 @@ impl<T: Real> Transforms<T> {
             return;
         }
         self.inner_axes(psi, work, scratch, true);
-        let (rows, plane) = (self.shape[0], self.plane());
-        let columns = self.block();
-        for first in (0..plane).step_by(columns) {
-            let width = columns.min(plane - first);
-            let block = &mut work[..rows * width];
-            gather(psi, block, rows, plane, first, width);
+        let rows = self.shape[0];
+        self.along_axis0(psi, work, scratch, |first, block, scratch| {
             self.forward[0].process_with_scratch(block, scratch);
-            T::multiply(block, &factors[first * rows..(first + width) * rows]);
+            T::multiply(block, &factors[first * rows..first * rows + block.len()]);
             self.inverse[0].process_with_scratch(block, scratch);
-            scatter(block, psi, rows, plane, first, width);
-        }
+        });
         self.inner_axes(psi, work, scratch, false);
     }
 
@@ -166,11 +182,7 @@ impl<T: Real> Transforms<T> {
         }
         self.inner_axes(psi, work, scratch, true);
         let (rows, plane) = (self.shape[0], self.plane());
-        let columns = self.block();
-        for first in (0..plane).step_by(columns) {
-            let width = columns.min(plane - first);
-            let block = &mut work[..rows * width];
-            gather(psi, block, rows, plane, first, width);
+        self.along_axis0(psi, work, scratch, |first, block, scratch| {
             self.forward[0].process_with_scratch(block, scratch);
             for (column, values) in block.chunks_exact_mut(rows).enumerate() {
                 for (row, z) in values.iter_mut().enumerate() {
@@ -178,8 +190,7 @@ impl<T: Real> Transforms<T> {
                 }
             }
             self.inverse[0].process_with_scratch(block, scratch);
-            scatter(block, psi, rows, plane, first, width);
-        }
+        });
         self.inner_axes(psi, work, scratch, false);
     }
 
@@ -198,15 +209,9 @@ impl<T: Real> Transforms<T> {
             return;
         }
         self.inner_axes(out, work, scratch, true);
-        let (rows, plane) = (self.shape[0], self.plane());
-        let columns = self.block();
-        for first in (0..plane).step_by(columns) {
-            let width = columns.min(plane - first);
-            let block = &mut work[..rows * width];
-            gather(out, block, rows, plane, first, width);
+        self.along_axis0(out, work, scratch, |_, block, scratch| {
             self.forward[0].process_with_scratch(block, scratch);
-            scatter(block, out, rows, plane, first, width);
-        }
+        });
     }
 
     /// A table given in C order over k space, in the order `kinetic` reads its
@@ -315,6 +320,14 @@ mod tests {
     /// 1D, 2D and 3D, with axis-0 blocks cut ragged.
     const SHAPES: [&[usize]; 5] = [&[6], &[4, 6], &[3, 5, 4], &[5, 37], &[4, 5, 7]];
 
+    /// The largest distance between two arrays, entry by entry.
+    fn gap(a: &[Complex64], b: &[Complex64]) -> f64 {
+        a.iter()
+            .zip(b)
+            .map(|(u, v)| (u - v).norm())
+            .fold(0.0, f64::max)
+    }
+
     fn sample(n: usize) -> Vec<Complex64> {
         (0..n)
             .map(|j| Complex64::new((0.37 * j as f64).sin(), (1.3 * j as f64 + 0.2).cos()))
@@ -332,11 +345,7 @@ mod tests {
             let (mut out, mut work) =
                 (vec![Complex64::default(); n], vec![Complex64::default(); n]);
             plans.forward_natural(&x, &mut out, &mut work, &mut scratch);
-            let gap = out
-                .iter()
-                .zip(&expected)
-                .map(|(a, b)| (a - b).norm())
-                .fold(0.0, f64::max);
+            let gap = gap(&out, &expected);
             assert!(gap < 1e-12, "{shape:?} natural {gap}");
         }
     }
@@ -359,11 +368,7 @@ mod tests {
             let product: Vec<Complex64> =
                 spectrum.iter().zip(&natural).map(|(a, b)| a * b).collect();
             let expected = direct(&shape, &product, 1.0);
-            let gap = psi
-                .iter()
-                .zip(&expected)
-                .map(|(a, b)| (a - b).norm())
-                .fold(0.0, f64::max);
+            let gap = gap(&psi, &expected);
             assert!(gap < 1e-12, "{shape:?} {gap}");
         }
     }
@@ -385,11 +390,7 @@ mod tests {
                 &plans.step_layout(&complex),
                 &mut scratch,
             );
-            let gap = a
-                .iter()
-                .zip(&b)
-                .map(|(u, v)| (u - v).norm())
-                .fold(0.0, f64::max);
+            let gap = gap(&a, &b);
             assert!(gap < 1e-14, "{shape:?} {gap}");
         }
     }
