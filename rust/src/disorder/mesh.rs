@@ -34,22 +34,18 @@
 //! normals per mode) or over the open modes in C order (speckle).
 
 use std::f64::consts::{FRAC_1_SQRT_2, PI, SQRT_2};
-use std::sync::Arc;
 
 use num_complex::Complex64;
-use rustfft::{Fft, FftPlanner};
 
 use super::{cauchy, positive, smooth_size, Kind};
 use crate::error::{invalid, CoreError};
+use crate::ndfft::Transforms;
 use crate::random::Stream;
 
-/// The most axes a mesh may have.
-pub const MAX_AXES: usize = 3;
+/// The most axes a mesh may have: the grid's.
+pub use crate::ndfft::MAX_AXES;
 
 const AXIS_NAMES: [&str; MAX_AXES] = ["x", "y", "z"];
-
-/// Columns gathered at once when transforming along a strided axis.
-const BATCH_LINES: usize = 16;
 
 /// Where the grid is: `shape[a]` points along axis `a` at `start[a] + j
 /// spacing[a]`; values are stored in C order (axis 0 slowest).
@@ -221,14 +217,15 @@ fn for_rows(
 }
 
 /// An inverse `d`-dimensional DFT, `x_j = sum_k y_k e^{+2 pi i j.k / M}`
-/// (unnormalized), on a C-order box: one planned 1D transform per axis.
+/// (unnormalized), on a C-order box: the split step's transforms
+/// (`crate::ndfft::Transforms`), with the box's size checked first.
 struct Transform {
     shape: Vec<usize>,
-    ffts: Vec<Arc<dyn Fft<f64>>>,
+    plans: Transforms<f64>,
 }
 
 impl Transform {
-    fn new(planner: &mut FftPlanner<f64>, shape: Vec<usize>) -> Result<Self, CoreError> {
+    fn new(shape: Vec<usize>) -> Result<Self, CoreError> {
         // Its complex buffer must be addressable (a Vec larger than isize::MAX bytes panics).
         let bytes = shape
             .iter()
@@ -240,8 +237,8 @@ impl Transform {
                 "the periodic box of a correlated disorder term, shape {shape:?}, has too many points"
             ));
         }
-        let ffts = shape.iter().map(|&n| planner.plan_fft_inverse(n)).collect();
-        Ok(Transform { shape, ffts })
+        let plans = Transforms::new(&shape);
+        Ok(Transform { shape, plans })
     }
 
     fn size(&self) -> usize {
@@ -249,54 +246,21 @@ impl Transform {
     }
 
     fn line_len(&self) -> usize {
-        BATCH_LINES * self.shape.iter().copied().max().unwrap_or(0)
+        self.plans.work_len()
     }
 
     fn scratch_len(&self) -> usize {
-        self.ffts
-            .iter()
-            .map(|fft| fft.get_inplace_scratch_len())
-            .max()
-            .unwrap_or(0)
+        self.plans.scratch_len()
     }
 
     /// Transforms `data` (the box's size) in place; `lines` and `scratch` are
     /// at least `line_len()` and `scratch_len()` long.
     fn inverse(&self, data: &mut [Complex64], lines: &mut [Complex64], scratch: &mut [Complex64]) {
-        let ndim = self.shape.len();
-        let scratch = &mut scratch[..self.scratch_len()];
-        for axis in (0..ndim).rev() {
-            let n = self.shape[axis];
-            let fft = &self.ffts[axis];
-            let stride: usize = self.shape[axis + 1..].iter().product();
-            if stride == 1 {
-                // Contiguous rows: rustfft transforms each chunk of n in turn.
-                fft.process_with_scratch(data, scratch);
-                continue;
-            }
-            // Gather up to BATCH_LINES neighbouring columns, transform, scatter back.
-            for slab in data.chunks_exact_mut(n * stride) {
-                let mut column = 0;
-                while column < stride {
-                    let batch = BATCH_LINES.min(stride - column);
-                    let lines = &mut lines[..batch * n];
-                    for j in 0..n {
-                        let row = &slab[j * stride + column..j * stride + column + batch];
-                        for (t, &z) in row.iter().enumerate() {
-                            lines[t * n + j] = z;
-                        }
-                    }
-                    fft.process_with_scratch(lines, scratch);
-                    for j in 0..n {
-                        let row = &mut slab[j * stride + column..j * stride + column + batch];
-                        for (t, z) in row.iter_mut().enumerate() {
-                            *z = lines[t * n + j];
-                        }
-                    }
-                    column += batch;
-                }
-            }
-        }
+        let (lines, scratch) = (
+            &mut lines[..self.line_len()],
+            &mut scratch[..self.scratch_len()],
+        );
+        self.plans.inverse_natural(data, lines, scratch);
     }
 }
 
@@ -363,7 +327,6 @@ impl MeshPlan {
     pub(super) fn new(mesh: Mesh, terms: &[BoxTerm]) -> Result<Self, CoreError> {
         let size = mesh.check()?;
         let ndim = mesh.ndim();
-        let mut planner = FftPlanner::<f64>::new();
         let mut prepared = Vec::with_capacity(terms.len());
         for term in terms {
             let region = Region::new(&mesh, term)?;
@@ -413,7 +376,7 @@ impl MeshPlan {
                     let scale = rms / power.sqrt();
                     amplitude[0].iter_mut().for_each(|a| *a *= scale);
                     Generator::Gaussian {
-                        transform: Transform::new(&mut planner, shape)?,
+                        transform: Transform::new(shape)?,
                         amplitude,
                     }
                 }
@@ -433,7 +396,7 @@ impl MeshPlan {
                             smooth_size(2 * region.extent[a] + margin as usize)
                         })
                         .collect();
-                    let transform = Transform::new(&mut planner, shape)?;
+                    let transform = Transform::new(shape)?;
                     let open = pupil(&transform.shape, &mesh.spacing, correlation_length);
                     Generator::Speckle {
                         transform,
@@ -695,6 +658,7 @@ pub(super) fn add(
 mod tests {
     use super::super::{Line, Plan, Realizer, Term};
     use super::*;
+    use std::sync::Arc;
 
     fn mesh() -> Mesh {
         Mesh {
@@ -757,7 +721,7 @@ mod tests {
                 .chunks_exact(2)
                 .map(|p| Complex64::new(p[0], p[1]))
                 .collect();
-            let transform = Transform::new(&mut FftPlanner::new(), shape.clone()).unwrap();
+            let transform = Transform::new(shape.clone()).unwrap();
             let mut data = input.clone();
             let mut lines = vec![Complex64::new(0.0, 0.0); transform.line_len()];
             let mut scratch = vec![Complex64::new(0.0, 0.0); transform.scratch_len()];
