@@ -141,29 +141,17 @@ def test_in_process_run_prints_one_line_per_point_and_fills_the_store(in_process
 
 
 def test_a_cluster_that_loses_a_worker_gives_the_same_numbers(workspace, in_process):
-    import dask
-    from distributed import Client, LocalCluster
+    from clusters import busy_worker, forgiving_cluster
+    from distributed import Client
 
-    with dask.config.set({"distributed.scheduler.allowed-failures": 10}):
-        cluster = LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
-        )
+    cluster = forgiving_cluster()
     with cluster, Client(cluster) as client:
         before = client.run(os.getpid)
         store = workspace / "cluster.mottle"
         run = start(
             "run", workspace / "study.toml", "--store", store, "--scheduler", cluster.scheduler_address
         )
-        deadline = time.monotonic() + 120
-        victim = None
-        while victim is None and time.monotonic() < deadline:
-            busy = {
-                w: keys for w, keys in client.processing().items() if any("mottle-point" in k for k in keys)
-            }
-            if busy:
-                victim = sorted(busy)[0]
-            else:
-                time.sleep(0.02)
+        victim = busy_worker(client)
         assert victim is not None and run.poll() is None, "no task was seen running"
         os.kill(before[victim], signal.SIGKILL)
         killed_at = len(mo.open_store(store).points) if store.exists() else 0

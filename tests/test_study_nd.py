@@ -147,20 +147,16 @@ def test_a_2d_study_survives_a_killed_worker(in_process, tmp_path):
     import signal
     import subprocess
     import sys
-    import time
     from pathlib import Path
 
-    import dask
-    from distributed import Client, LocalCluster
+    from clusters import busy_worker, forgiving_cluster
+    from distributed import Client
 
     study = tmp_path / "slab.toml"
     study.write_text(SLAB)
     script = Path(sys.executable).with_name("mottle")
     command = [str(script)] if script.exists() else [sys.executable, "-m", "mottle.cli"]
-    with dask.config.set({"distributed.scheduler.allowed-failures": 10}):
-        cluster = LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
-        )
+    cluster = forgiving_cluster()
     with cluster, Client(cluster) as client:
         before = client.run(os.getpid)
         store = tmp_path / "killed.mottle"
@@ -170,13 +166,7 @@ def test_a_2d_study_survives_a_killed_worker(in_process, tmp_path):
             stderr=subprocess.PIPE,
             text=True,
         )
-        deadline, victim = time.monotonic() + 120, None
-        while victim is None and time.monotonic() < deadline:
-            busy = [w for w, keys in client.processing().items() if any("mottle-point" in k for k in keys)]
-            if busy:
-                victim = sorted(busy)[0]
-            else:
-                time.sleep(0.01)
+        victim = busy_worker(client)
         assert victim is not None and run.poll() is None, "no task was seen running"
         os.kill(before[victim], signal.SIGKILL)
         _, err = run.communicate(timeout=300)

@@ -56,7 +56,8 @@ def warn_if_coarse(system, packet, step: float, potential: np.ndarray) -> None:
     the kinetic phase a step puts on the wavenumbers the packet populates (per axis, summed), or the
     potential's phase across its range, exceeds pi."""
     grid, model, hbar = system.grid, system.model, system.hbar
-    weight = np.abs(np.fft.fftn(packet.values(grid))) ** 2
+    psi = packet.values(grid)
+    weight = np.abs(np.fft.fftn(psi)) ** 2
     total = float(np.sum(weight))
     phase, bands = 0.0, []
     for a in range(grid.ndim):
@@ -86,7 +87,7 @@ def warn_if_coarse(system, packet, step: float, potential: np.ndarray) -> None:
         return
     # As in 1D: only the potential the packet can reach counts, clipped at four times the energy
     # it carries above the floor (a harmonic well's walls far beyond the turning points do not).
-    density = np.abs(packet.values(grid)) ** 2
+    density = np.abs(psi) ** 2
     support = density > 1e-10 * density.max()
     kinetic = sum(
         float(model.kinetic(band, grid.dx[a]) - model.kinetic(0.0, grid.dx[a]))
